@@ -1,0 +1,199 @@
+"""Profile likelihoods over a power and their maximum with a likelihood-ratio interval.
+
+Numerics: powers are evaluated on logs centred by their mean,
+``expm1(p * (log v - mean log v)) / p``, which is an affine change of
+``v**p`` (so the residual sum of squares of a line with an intercept changes
+only by a known factor) and neither overflows for large ``|p|`` nor loses
+digits as ``p`` nears 0.
+"""
+from __future__ import annotations
+
+import numpy as np
+from scipy import optimize, stats
+
+from ._validation import UnbendError
+
+_LOG2PI1 = np.log(2.0 * np.pi) + 1.0
+_TINY = 1e-300
+
+
+def centred_power(d: np.ndarray, p: float) -> np.ndarray:
+    """``expm1(p * d) / p`` with its limit ``d`` at p = 0 (d: centred logs)."""
+    if abs(p) < 1e-12:
+        return d.copy() if d.ndim else d
+    with np.errstate(over="ignore", invalid="ignore"):
+        return np.expm1(p * d) / p
+
+
+class Design:
+    """Orthonormal basis of [1, X] for residual sums of squares."""
+
+    def __init__(self, X: np.ndarray | None):
+        self.X = X
+        if X is None:
+            self.Q = None
+            return
+        if not np.isfinite(X).all():
+            raise UnbendError("x has values that cannot be re-expressed at this power; add a start or choose another power.")
+        mu = X.mean(axis=0)
+        sc = X.std(axis=0)
+        if np.any(sc == 0):
+            raise UnbendError("x does not vary (every x value is the same); a line needs at least two different x values.")
+        A = np.column_stack([np.ones(X.shape[0]), (X - mu) / sc])
+        Q, R = np.linalg.qr(A)
+        d = np.abs(np.diag(R))
+        if d.min() <= d.max() * 1e-12:
+            raise UnbendError("the x columns are collinear (one is a combination of the others); remove one.")
+        self.Q = Q
+
+    def residuals(self, u: np.ndarray) -> np.ndarray:
+        if self.Q is None:
+            return u - u.mean()
+        return u - self.Q @ (self.Q.T @ u)
+
+    def rss(self, u: np.ndarray) -> float:
+        r = self.residuals(u)
+        return float(r @ r)
+
+
+def gaussian_loglik(rss: float, n: int) -> float:
+    """Maximised normal log-likelihood of a linear model with residual sum of squares ``rss``."""
+    return -0.5 * n * (_LOG2PI1 + np.log(max(rss, _TINY) / n))
+
+
+class BoxCoxProfile:
+    """Profile log-likelihood of y's power, Jacobian included (values must be > 0 for the ladder)."""
+
+    def __init__(self, v: np.ndarray, design: Design | None, family: str = "ladder"):
+        self.family = family
+        self.design = design if design is not None else Design(None)
+        self.n = v.size
+        if family == "ladder":
+            logv = np.log(v)
+            self.m = float(logv.mean())
+            self.d = logv - self.m
+        else:
+            self.v = v
+            self.jac = float(np.sum(np.sign(v) * np.log1p(np.abs(v))))
+
+    def loglik(self, lam: float) -> float:
+        """Log-likelihood in the original units of y at power ``lam``."""
+        if self.family == "ladder":
+            u = centred_power(self.d, lam)
+            if not np.all(np.isfinite(u)):
+                return -np.inf
+            # RSS of (v**lam - 1)/lam is exp(2 lam m) * RSS(u); Jacobian (lam-1) n m.
+            return gaussian_loglik(self.design.rss(u), self.n) - self.n * self.m
+        from .express import _yj
+        t = _yj(self.v, lam)
+        if not np.all(np.isfinite(t)):
+            return -np.inf
+        return gaussian_loglik(self.design.rss(t), self.n) + (lam - 1.0) * self.jac
+
+
+class XPowerProfile:
+    """Profile log-likelihood over a power shared by the x columns (x must be > 0)."""
+
+    def __init__(self, yt: np.ndarray, xpos: np.ndarray):
+        if not np.all(np.isfinite(yt)):
+            raise UnbendError("y has values that cannot be re-expressed at this power; add a start or choose another power.")
+        self.y = yt - yt.mean()
+        L = np.log(xpos)
+        self.D = L - L.mean(axis=0)
+        if np.any(self.D.std(axis=0) == 0):
+            raise UnbendError("x does not vary (every x value is the same); a line needs at least two different x values.")
+        self.n = yt.size
+
+    def loglik(self, alpha: float) -> float:
+        U = centred_power(self.D, alpha)
+        if not np.all(np.isfinite(U)):
+            return -np.inf
+        U = U - U.mean(axis=0)
+        if U.shape[1] == 1:
+            u = U[:, 0]
+            suu = float(u @ u)
+            if suu <= 0:
+                return -np.inf
+            suy = float(u @ self.y)
+            rss = float(self.y @ self.y) - suy * suy / suu
+            # guard against cancellation when the fit is nearly exact
+            if rss < 1e-8 * float(self.y @ self.y):
+                r = self.y - u * (suy / suu)
+                rss = float(r @ r)
+        else:
+            coef, *_ = np.linalg.lstsq(U, self.y, rcond=None)
+            r = self.y - U @ coef
+            rss = float(r @ r)
+        return gaussian_loglik(rss, self.n)
+
+
+def maximise_with_interval(f, level: float, *, span: float = 5.0, limit: float = 20.0):
+    """Maximise ``f`` over a power and find the likelihood-ratio interval.
+
+    Returns
+    -------
+    (estimate, low, high, max loglik); an end the data do not bound within
+    +-``limit`` is returned as -inf or inf.
+    """
+    grid = np.linspace(-span, span, 41)
+    vals = np.array([f(g) for g in grid])
+    vals[~np.isfinite(vals) & ~(vals == np.inf)] = -np.inf
+    while True:
+        i = int(np.argmax(vals))
+        if not np.isfinite(vals[i]) and vals[i] < 0:
+            raise UnbendError("the likelihood could not be evaluated at any power; check the data for extreme values.")
+        if 0 < i < grid.size - 1 or abs(grid[i]) >= limit:
+            break
+        step = grid[1] - grid[0]
+        new = grid[-1] + step if i == grid.size - 1 else grid[0] - step
+        nv = f(new)
+        nv = nv if np.isfinite(nv) else -np.inf
+        if i == grid.size - 1:
+            grid, vals = np.append(grid, new), np.append(vals, nv)
+        else:
+            grid, vals = np.insert(grid, 0, new), np.insert(vals, 0, nv)
+    i = int(np.argmax(vals))
+    a = grid[max(i - 1, 0)]
+    b = grid[min(i + 1, grid.size - 1)]
+    res = optimize.minimize_scalar(lambda p: -f(p), bounds=(a, b), method="bounded",
+                                   options={"xatol": 1e-10})
+    est = float(res.x) if -res.fun >= vals[i] else float(grid[i])
+    top = float(f(est))
+    target = top - stats.chi2.ppf(level, 1) / 2.0
+
+    def g(p):
+        v = f(p)
+        return (v if np.isfinite(v) else -np.inf) - target
+
+    return est, _end(g, est, -1, limit), _end(g, est, +1, limit), top
+
+
+def _end(g, est: float, direction: int, limit: float) -> float:
+    inner = est
+    step = 0.25
+    outer = est + direction * step
+    while g(outer) > 0:
+        inner = outer
+        step *= 1.6
+        outer = est + direction * step
+        if abs(outer) > limit:
+            return direction * np.inf
+    go = g(outer)
+    if not np.isfinite(go):
+        # bisect into the finite region first
+        lo_, hi_ = inner, outer
+        for _ in range(200):
+            mid = 0.5 * (lo_ + hi_)
+            gm = g(mid)
+            if np.isfinite(gm) and gm <= 0:
+                outer = mid
+                break
+            if gm > 0:
+                lo_ = mid
+                inner = mid
+            else:
+                hi_ = mid
+        else:
+            return float(hi_)
+    a, b = sorted((inner, outer))
+    return float(optimize.brentq(g, a, b, xtol=1e-12, rtol=4 * np.finfo(float).eps, maxiter=200))

@@ -1,0 +1,165 @@
+"""All input checking for the engine, in one place.
+
+Every function here copies what it is given (the caller's arrays are never
+changed) and raises :class:`UnbendError` with a message that says what is
+wrong and what to do about it.
+"""
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+__all__ = [
+    "UnbendError",
+    "DomainError",
+    "as_vector",
+    "as_matrix",
+    "usable_rows",
+    "check_level",
+    "check_power",
+    "Rows",
+    "MIN_ROWS",
+    "FEW_ROWS",
+]
+
+#: Fewest rows a straight line with an interval can be fitted to.
+MIN_ROWS = 3
+#: Below this many usable rows every result carries a caution (common practice).
+FEW_ROWS = 8
+
+
+class UnbendError(ValueError):
+    """Raised when the input cannot be used; the message says what to do."""
+
+
+class DomainError(UnbendError):
+    """A re-expression needs values it was not given (for example log of 0).
+
+    Attributes
+    ----------
+    proposed_start : float
+        A start that, added to every value, makes the re-expression possible.
+    """
+
+    def __init__(self, message: str, proposed_start: float):
+        super().__init__(message)
+        self.proposed_start = float(proposed_start)
+
+
+def as_vector(values, name: str = "values") -> np.ndarray:
+    """Return a new 1-D float array; text and other non-numbers become NaN."""
+    if values is None:
+        raise UnbendError(f"{name} is empty; give a column of numbers.")
+    if np.isscalar(values):
+        values = [values]
+    try:
+        arr = np.array(values, dtype=float, copy=True)
+    except (TypeError, ValueError):
+        arr = np.array([_to_float(v) for v in np.ravel(np.asarray(values, dtype=object))], dtype=float)
+    if arr.ndim == 2 and 1 in arr.shape:
+        arr = arr.reshape(-1)
+    if arr.ndim != 1:
+        raise UnbendError(f"{name} must be one column of numbers; got shape {arr.shape}.")
+    return arr
+
+
+def as_matrix(x, name: str = "x") -> np.ndarray:
+    """Return a new 2-D float array, one column per predictor."""
+    if x is None:
+        raise UnbendError(f"{name} is empty; give a column of numbers.")
+    if np.isscalar(x):
+        x = [x]
+    try:
+        arr = np.array(x, dtype=float, copy=True)
+    except (TypeError, ValueError):
+        obj = np.asarray(x, dtype=object)
+        arr = np.vectorize(_to_float, otypes=[float])(obj) if obj.size else np.zeros(obj.shape)
+    if arr.ndim == 1:
+        arr = arr[:, None]
+    if arr.ndim != 2:
+        raise UnbendError(f"{name} must be a column, or a block with one column per predictor; got shape {arr.shape}.")
+    return arr
+
+
+def _to_float(v) -> float:
+    if isinstance(v, (bool, np.bool_)) or v is None:
+        return np.nan
+    try:
+        return float(v)
+    except (TypeError, ValueError):
+        return np.nan
+
+
+@dataclass(frozen=True)
+class Rows:
+    """Which rows were used, and why the others were skipped."""
+
+    used: np.ndarray  # boolean mask over the input rows
+    skipped: tuple  # ((row number counted from 1, reason), ...)
+
+    @property
+    def n_used(self) -> int:
+        return int(self.used.sum())
+
+    @property
+    def n_skipped(self) -> int:
+        return len(self.skipped)
+
+    def skipped_text(self, limit: int = 5) -> str:
+        """A short sentence naming the skipped rows, or '' when none were."""
+        if not self.skipped:
+            return ""
+        shown = "; ".join(f"row {r}: {why}" for r, why in self.skipped[:limit])
+        more = f"; and {len(self.skipped) - limit} more" if len(self.skipped) > limit else ""
+        return f"{len(self.skipped)} row(s) skipped ({shown}{more})."
+
+
+def usable_rows(y: np.ndarray, X: np.ndarray | None = None, *, need: int = MIN_ROWS,
+                y_name: str = "y", x_name: str = "x") -> Rows:
+    """Rows where y and every x are finite numbers; too few raises UnbendError."""
+    ok_y = np.isfinite(y)
+    ok = ok_y.copy()
+    if X is not None:
+        if X.shape[0] != y.shape[0]:
+            raise UnbendError(
+                f"{y_name} has {y.shape[0]} rows but {x_name} has {X.shape[0]}; give ranges of the same length.")
+        ok_x = np.isfinite(X).all(axis=1)
+        ok &= ok_x
+    bad = np.flatnonzero(~ok)
+    skipped = []
+    for i in bad[:10000]:
+        if not ok_y[i] and (X is None or not ok_x[i]):
+            why = f"{y_name} and {x_name} are not numbers"
+        elif not ok_y[i]:
+            why = f"{y_name} is not a number"
+        else:
+            why = f"{x_name} is not a number"
+        skipped.append((int(i) + 1, why))
+    if len(bad) > 10000:
+        skipped.append((int(bad[10000]) + 1, f"and {len(bad) - 10000} further rows without numbers"))
+    rows = Rows(used=ok, skipped=tuple(skipped))
+    if rows.n_used < need:
+        both = f"both {y_name} and {x_name} are" if X is not None else f"{y_name} is"
+        raise UnbendError(f"need at least {need} rows where {both} numbers; found {rows.n_used}.")
+    return rows
+
+
+def check_level(level) -> float:
+    try:
+        lv = float(level)
+    except (TypeError, ValueError):
+        raise UnbendError("level must be a number between 0 and 1, such as 0.95.") from None
+    if not (0.0 < lv < 1.0):
+        raise UnbendError(f"level must be between 0 and 1 (such as 0.95); got {level!r}.")
+    return lv
+
+
+def check_power(power, name: str = "power") -> float:
+    try:
+        p = float(power)
+    except (TypeError, ValueError):
+        raise UnbendError(f"{name} must be a number such as 1, 0.5, 0 (log) or -1; got {power!r}.") from None
+    if not np.isfinite(p) or abs(p) > 100:
+        raise UnbendError(f"{name} must be a number between -100 and 100; got {power!r}.")
+    return p

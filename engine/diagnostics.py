@@ -1,0 +1,193 @@
+"""Residual checks: curvature, change of spread, normality, and a verdict in words."""
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+from scipy import stats
+
+__all__ = ["Check", "curvature_test", "spread_test", "normality_test", "verdict"]
+
+#: Significance level the checks use to call a problem (common practice).
+ALPHA = 0.05
+
+
+@dataclass(frozen=True)
+class Check:
+    """One residual check.
+
+    Attributes
+    ----------
+    name : str
+        Test used.
+    statistic, pvalue : float
+        NaN when the test could not be run (too few rows).
+    passed : bool or None
+        True when no problem is found at the 5% level; None when not run.
+    direction : float
+        Sign of the departure: for curvature, the sign of the squared-term
+        coefficient (+1 residuals bow up at both ends, -1 bow down); for
+        spread, +1 when spread grows with the fitted value, -1 when it shrinks.
+    """
+
+    name: str
+    statistic: float
+    pvalue: float
+    passed: bool | None
+    direction: float = 0.0
+
+    @property
+    def ran(self) -> bool:
+        return self.passed is not None
+
+
+def _not_run(name: str) -> Check:
+    return Check(name, float("nan"), float("nan"), None, 0.0)
+
+
+def curvature_test(A: np.ndarray, y: np.ndarray, fitted: np.ndarray) -> Check:
+    """Tukey's one-degree-of-freedom test for curvature.
+
+    The squared, centred fitted value is added to the line as one extra
+    column; its t test asks whether the residuals still bend.
+
+    Parameters
+    ----------
+    A : ndarray (n, p)
+        Design of the line, intercept included.
+    y : ndarray (n,)
+        Re-expressed response.
+    fitted : ndarray (n,)
+        Fitted values of the line.
+
+    References
+    ----------
+    Tukey, J. W. (1949). One degree of freedom for non-additivity.
+    *Biometrics* 5(3), 232-242.
+    """
+    n, p = A.shape
+    if n < p + 3:
+        return _not_run("Tukey one-degree-of-freedom")
+    f = fitted - fitted.mean()
+    sd = f.std()
+    if sd == 0 or not np.isfinite(sd):
+        return _not_run("Tukey one-degree-of-freedom")
+    q = (f / sd) ** 2
+    B = np.column_stack([A, q - q.mean()])
+    Q, R = np.linalg.qr(B)
+    if abs(R[-1, -1]) <= 1e-10 * np.abs(np.diag(R)).max():
+        return _not_run("Tukey one-degree-of-freedom")
+    coef = np.linalg.solve(R, Q.T @ y)
+    r = y - B @ coef
+    df = n - p - 1
+    s2 = float(r @ r) / df
+    Rinv = np.linalg.inv(R)
+    se = np.sqrt(s2 * float(Rinv[-1] @ Rinv[-1]))
+    if se == 0:
+        t = np.inf if coef[-1] else 0.0
+        pv = 0.0 if coef[-1] else 1.0
+    else:
+        t = float(coef[-1] / se)
+        pv = float(2 * stats.t.sf(abs(t), df))
+    return Check("Tukey one-degree-of-freedom", t, pv, bool(pv >= ALPHA), float(np.sign(coef[-1])))
+
+
+def spread_test(Xt: np.ndarray, resid: np.ndarray, fitted: np.ndarray) -> Check:
+    """Breusch–Pagan test (Koenker's studentized form) for spread that changes.
+
+    Squared residuals are regressed on the x columns; ``n R^2`` is compared
+    with chi-square on as many degrees of freedom as there are x columns.
+
+    References
+    ----------
+    Breusch, T. S. and Pagan, A. R. (1979). A simple test for
+    heteroscedasticity and random coefficient variation. *Econometrica*
+    47(5), 1287-1294.
+    Koenker, R. (1981). A note on studentizing a test for heteroscedasticity.
+    *Journal of Econometrics* 17(1), 107-112.
+    """
+    n, k = Xt.shape
+    if n < k + 3:
+        return _not_run("Breusch-Pagan (Koenker)")
+    e2 = resid ** 2
+    if np.ptp(e2) == 0:
+        return Check("Breusch-Pagan (Koenker)", 0.0, 1.0, True, 0.0)
+    sc = Xt.std(axis=0)
+    sc[sc == 0] = 1.0
+    B = np.column_stack([np.ones(n), (Xt - Xt.mean(axis=0)) / sc])
+    coef, *_ = np.linalg.lstsq(B, e2, rcond=None)
+    r = e2 - B @ coef
+    d = e2 - e2.mean()
+    r2 = 1.0 - float(r @ r) / float(d @ d)
+    lm = n * r2
+    pv = float(stats.chi2.sf(lm, k))
+    c = np.corrcoef(np.abs(resid), fitted)[0, 1] if np.ptp(fitted) > 0 else 0.0
+    return Check("Breusch-Pagan (Koenker)", float(lm), pv, bool(pv >= ALPHA),
+                 float(np.sign(c)) if np.isfinite(c) else 0.0)
+
+
+def normality_test(resid: np.ndarray) -> Check:
+    """Shapiro–Wilk for up to 5,000 residuals, D'Agostino–Pearson above that.
+
+    References
+    ----------
+    Shapiro, S. S. and Wilk, M. B. (1965). *Biometrika* 52(3/4), 591-611.
+    D'Agostino, R. B. and Pearson, E. S. (1973). *Biometrika* 60(3), 613-622.
+    """
+    n = resid.size
+    if n < 8 or np.ptp(resid) == 0:
+        return _not_run("Shapiro-Wilk")
+    if n <= 5000:
+        st, pv = stats.shapiro(resid)
+        name = "Shapiro-Wilk"
+    else:
+        st, pv = stats.normaltest(resid)
+        name = "D'Agostino-Pearson"
+    return Check(name, float(st), float(pv), bool(pv >= ALPHA / 5), 0.0)
+
+
+def _p(pv: float) -> str:
+    return "p < 0.001" if pv < 0.001 else f"p = {pv:.3f}"
+
+
+def verdict(r2: float, curvature: Check, spread: Check, normality: Check, n: int,
+            y_power: float = 1.0, x_power: float = 1.0) -> str:
+    """One or two plain sentences on whether the straight line holds on this scale.
+
+    The advice on which way to move follows Tukey's bulging rule (common
+    practice): residuals that bow up at both ends call for y lower on the
+    ladder or x higher; bowing down, the opposite.
+    """
+    parts = []
+    if curvature.ran and not curvature.passed:
+        if curvature.direction > 0:
+            move = "try y lower on the ladder (towards log) or x higher (towards square)"
+        else:
+            move = "try y higher on the ladder (towards square) or x lower (towards log)"
+        lead = f"R\u00b2 is {r2:.3f}, yet the residuals still curve" if r2 >= 0.8 else "The residuals still curve"
+        parts.append(f"{lead} (curvature test {_p(curvature.pvalue)}): a straight line on this scale misses a bend; {move}.")
+    if spread.ran and not spread.passed:
+        if spread.direction >= 0:
+            move = "the spread grows with the fitted value; move y lower on the ladder"
+        else:
+            move = "the spread shrinks as the fitted value grows; move y higher on the ladder"
+        lead = "The residuals also fan out" if parts else (
+            f"R\u00b2 is {r2:.3f}, yet the residuals fan out" if r2 >= 0.8 else "The residuals fan out")
+        parts.append(f"{lead} (spread test {_p(spread.pvalue)}): {move}; intervals assume an even spread.")
+    if not parts:
+        bits = []
+        if curvature.ran:
+            bits.append(f"curvature ({_p(curvature.pvalue)})")
+        if spread.ran:
+            bits.append(f"change of spread ({_p(spread.pvalue)})")
+        if bits:
+            parts.append(f"No clear {' or '.join(bits)} in the residuals: the straight line on this scale "
+                         "holds by these checks. Still look at the residual plot.")
+        else:
+            parts.append("Too few rows to check the residuals for curvature or spread.")
+    if normality.ran and not normality.passed:
+        parts.append(f"The residuals are far from normal ({normality.name} {_p(normality.pvalue)}): "
+                     "prediction intervals may be off; look for outliers.")
+    if n < 8:
+        parts.append(f"Only {n} rows: the checks have little power.")
+    return " ".join(parts)
