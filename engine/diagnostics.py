@@ -6,7 +6,7 @@ from dataclasses import dataclass
 import numpy as np
 from scipy import stats
 
-__all__ = ["Check", "curvature_test", "spread_test", "normality_test", "verdict"]
+__all__ = ["Check", "curvature_test", "pattern_test", "spread_test", "normality_test", "verdict"]
 
 #: Significance level the checks use to call a problem (common practice).
 ALPHA = 0.05
@@ -92,6 +92,32 @@ def curvature_test(A: np.ndarray, y: np.ndarray, fitted: np.ndarray) -> Check:
     return Check("Tukey one-degree-of-freedom", t, pv, bool(pv >= ALPHA), float(np.sign(coef[-1])))
 
 
+def pattern_test(resid: np.ndarray, fitted: np.ndarray) -> Check:
+    """Residual pattern by level: Kruskal–Wallis test across bins of the fitted value.
+
+    The rows are cut into 3 to 10 bins of about equal size in order of the
+    fitted value; if the residuals in some bins sit systematically above or
+    below the others, the line misses a shape that a squared term may not
+    catch (a sharp bend, a kink, a levelling off). Ranks make the check
+    robust to a few wild residuals.
+
+    References
+    ----------
+    Kruskal, W. H. and Wallis, W. A. (1952). Use of ranks in one-criterion
+    variance analysis. *JASA* 47(260), 583-621.
+    """
+    n = resid.size
+    if n < 12 or np.ptp(resid) == 0:
+        return _not_run("Kruskal-Wallis across fitted-value bins")
+    k = int(np.clip(n // 8, 3, 10))
+    order = np.argsort(fitted, kind="stable")
+    g = np.empty(n, dtype=int)
+    g[order] = np.arange(n) * k // n
+    groups = [resid[g == i] for i in range(k)]
+    st, pv = stats.kruskal(*groups)
+    return Check("Kruskal-Wallis across fitted-value bins", float(st), float(pv), bool(pv >= ALPHA), 0.0)
+
+
 def spread_test(Xt: np.ndarray, resid: np.ndarray, fitted: np.ndarray) -> Check:
     """Breusch–Pagan test (Koenker's studentized form) for spread that changes.
 
@@ -151,7 +177,7 @@ def _p(pv: float) -> str:
 
 
 def verdict(r2: float, curvature: Check, spread: Check, normality: Check, n: int,
-            y_power: float = 1.0, x_power: float = 1.0) -> str:
+            pattern: Check | None = None) -> str:
     """One or two plain sentences on whether the straight line holds on this scale.
 
     The advice on which way to move follows Tukey's bulging rule (common
@@ -166,6 +192,10 @@ def verdict(r2: float, curvature: Check, spread: Check, normality: Check, n: int
             move = "try y higher on the ladder (towards square) or x lower (towards log)"
         lead = f"R\u00b2 is {r2:.3f}, yet the residuals still curve" if r2 >= 0.8 else "The residuals still curve"
         parts.append(f"{lead} (curvature test {_p(curvature.pvalue)}): a straight line on this scale misses a bend; {move}.")
+    elif pattern is not None and pattern.ran and not pattern.passed:
+        lead = f"R\u00b2 is {r2:.3f}, yet the residuals" if r2 >= 0.8 else "The residuals"
+        parts.append(f"{lead} drift up and down with the fitted value (pattern check {_p(pattern.pvalue)}): "
+                     "the line misses a shape; try other rungs (see the scan).")
     if spread.ran and not spread.passed:
         if spread.direction >= 0:
             move = "the spread grows with the fitted value; move y lower on the ladder"
@@ -178,10 +208,12 @@ def verdict(r2: float, curvature: Check, spread: Check, normality: Check, n: int
         bits = []
         if curvature.ran:
             bits.append(f"curvature ({_p(curvature.pvalue)})")
+        if pattern is not None and pattern.ran:
+            bits.append(f"pattern ({_p(pattern.pvalue)})")
         if spread.ran:
             bits.append(f"change of spread ({_p(spread.pvalue)})")
         if bits:
-            parts.append(f"No clear {' or '.join(bits)} in the residuals: the straight line on this scale "
+            parts.append(f"No clear {', '.join(bits[:-1]) + ' or ' + bits[-1] if len(bits) > 1 else bits[0]} in the residuals: the straight line on this scale "
                          "holds by these checks. Still look at the residual plot.")
         else:
             parts.append("Too few rows to check the residuals for curvature or spread.")

@@ -8,7 +8,7 @@ import pandas as pd
 from scipy import linalg, stats
 
 from ._validation import FEW_ROWS, UnbendError, as_matrix, as_vector, check_level, usable_rows
-from .diagnostics import Check, curvature_test, normality_test, spread_test, verdict
+from .diagnostics import Check, curvature_test, normality_test, pattern_test, spread_test, verdict
 from .express import Reexpression
 
 __all__ = ["LineFit", "fit", "CAUTION"]
@@ -41,7 +41,10 @@ class LineFit:
     residuals : pandas.DataFrame
         Per used row: row, y, x, y_re, fitted, residual, standardized,
         studentized, leverage, cooks_distance.
-    curvature, spread, normality : Check
+    curvature, pattern, spread, normality : Check
+        Tukey's one-degree-of-freedom curvature test, Kruskal–Wallis across
+        fitted-value bins, Breusch–Pagan, and Shapiro–Wilk (or
+        D'Agostino–Pearson above 5,000 rows).
     verdict : str
     warnings : tuple of str
     """
@@ -66,6 +69,7 @@ class LineFit:
     x_min: np.ndarray
     x_max: np.ndarray
     curvature: Check
+    pattern: Check
     spread: Check
     normality: Check
     verdict: str
@@ -139,6 +143,8 @@ class LineFit:
             ("rows skipped", self.n_skipped),
             ("curvature check p (Tukey 1 df)", self.curvature.pvalue),
             ("curvature check", _word(self.curvature, "no clear curvature", "residuals curve")),
+            ("pattern check p (Kruskal-Wallis, fitted-value bins)", self.pattern.pvalue),
+            ("pattern check", _word(self.pattern, "no drift with level", "residuals drift with level")),
             ("spread check p (Breusch-Pagan)", self.spread.pvalue),
             ("spread check", _word(self.spread, "even spread", "spread changes")),
             (f"normality check p ({self.normality.name})", self.normality.pvalue),
@@ -303,6 +309,7 @@ def fit(y, x, *, y_power=1.0, x_power=1.0, y_start=0.0, x_start=0.0, level=0.95,
         warnings.append(rows.skipped_text())
 
     curv = curvature_test(A, yt, fitted)
+    pat = pattern_test(resid, fitted)
     spr = spread_test(Xt, resid, fitted)
     nor = normality_test(resid)
     names = tuple(x_names) if x_names is not None else (("x",) if k == 1 else tuple(f"x{i + 1}" for i in range(k)))
@@ -330,7 +337,7 @@ def fit(y, x, *, y_power=1.0, x_power=1.0, y_start=0.0, x_start=0.0, level=0.95,
         y_expr=y_t, x_expr=x_t, coef=coef, se=se, tvalues=tv, pvalues=pv,
         ci_low=coef - tq * se, ci_high=coef + tq * se, level=level, r2=r2, adj_r2=adj,
         r2_original=r2o, resid_sd=float(s), df_resid=int(df), n=int(n), skipped=rows.skipped,
-        x_names=names, x_min=Xu.min(axis=0), x_max=Xu.max(axis=0), curvature=curv, spread=spr,
-        normality=nor, verdict=verdict(r2, curv, spr, nor, n, y_power, x_power), warnings=tuple(warnings),
+        x_names=names, x_min=Xu.min(axis=0), x_max=Xu.max(axis=0), curvature=curv, pattern=pat,
+        spread=spr, normality=nor, verdict=verdict(r2, curv, spr, nor, n, pat), warnings=tuple(warnings),
         loglik=float(ll), residuals=table, _resid=resid, _mu=mu, _sc=sc, _Rinv=Rinv,
     )

@@ -10,7 +10,7 @@ from .fitting import fit as _fit
 
 __all__ = ["scan"]
 
-COLUMNS = ["rank", "y_power", "x_power", "y_rung", "x_rung", "loglik", "curvature_p", "spread_p",
+COLUMNS = ["rank", "y_power", "x_power", "y_rung", "x_rung", "loglik", "curvature_p", "pattern_p", "spread_p",
            "normality_p", "r2", "r2_original", "verdict", "n"]
 
 
@@ -18,12 +18,14 @@ def _short(f) -> str:
     bad = []
     if f.curvature.ran and not f.curvature.passed:
         bad.append("curves")
+    elif f.pattern.ran and not f.pattern.passed:
+        bad.append("drifts with level")
     if f.spread.ran and not f.spread.passed:
         bad.append("fans out")
     if not f.curvature.ran:
         return "too few rows to check"
     if bad:
-        return "residuals " + " and ".join(bad).replace("curves", "curve").replace("fans", "fan")
+        return "residuals " + " and ".join(bad).replace("curves", "curve").replace("fans", "fan").replace("drifts", "drift")
     return "holds: no clear curvature, even spread"
 
 
@@ -45,7 +47,8 @@ def scan(y, x, *, y_start=0.0, x_start=0.0, rungs=None) -> pd.DataFrame:
         One row per pair, best first, with columns rank, y_power, x_power,
         y_rung, x_rung, loglik (log-likelihood in the original units of y,
         Jacobian included, so rows with different y powers compare),
-        curvature_p (Tukey's one-degree-of-freedom test), spread_p
+        curvature_p (Tukey's one-degree-of-freedom test), pattern_p
+        (Kruskal-Wallis across fitted-value bins), spread_p
         (Breusch-Pagan), normality_p, r2 (re-expressed scale), r2_original
         (back-transformed line against y), verdict and n. Pairs whose
         re-expression is not possible (log of 0, say) come last with the
@@ -53,8 +56,8 @@ def scan(y, x, *, y_start=0.0, x_start=0.0, rungs=None) -> pd.DataFrame:
 
     Notes
     -----
-    Ranking: pairs whose residuals show no curvature at the 5% level come
-    first, each group ordered by log-likelihood. R² is shown but never used
+    Ranking: pairs whose residuals show no curvature and no pattern at the
+    5% level come first, each group ordered by log-likelihood. R² is shown but never used
     to rank: it cannot be compared across y scales and a high R² can hide a
     bend.
 
@@ -87,20 +90,22 @@ def scan(y, x, *, y_start=0.0, x_start=0.0, rungs=None) -> pd.DataFrame:
                    "n": int(yu.size)}
             err = y_err or _domain(Reexpression(px, x_start), Xu.ravel(), "x")
             if err:
-                rec.update(loglik=np.nan, curvature_p=np.nan, spread_p=np.nan, normality_p=np.nan,
+                rec.update(loglik=np.nan, curvature_p=np.nan, pattern_p=np.nan, spread_p=np.nan, normality_p=np.nan,
                            r2=np.nan, r2_original=np.nan, verdict=f"not possible: {err}", _ok=False, _curv=False)
                 out.append(rec)
                 continue
             try:
                 f = _fit(yu, Xu, y_power=py, x_power=px, y_start=y_start, x_start=x_start)
             except UnbendError as e:
-                rec.update(loglik=np.nan, curvature_p=np.nan, spread_p=np.nan, normality_p=np.nan,
+                rec.update(loglik=np.nan, curvature_p=np.nan, pattern_p=np.nan, spread_p=np.nan, normality_p=np.nan,
                            r2=np.nan, r2_original=np.nan, verdict=f"not possible: {e}", _ok=False, _curv=False)
                 out.append(rec)
                 continue
-            rec.update(loglik=f.loglik, curvature_p=f.curvature.pvalue, spread_p=f.spread.pvalue,
+            rec.update(loglik=f.loglik, curvature_p=f.curvature.pvalue, pattern_p=f.pattern.pvalue,
+                       spread_p=f.spread.pvalue,
                        normality_p=f.normality.pvalue, r2=f.r2, r2_original=f.r2_original,
-                       verdict=_short(f), _ok=True, _curv=f.curvature.passed is not False)
+                       verdict=_short(f), _ok=True,
+                       _curv=f.curvature.passed is not False and f.pattern.passed is not False)
             out.append(rec)
     t = pd.DataFrame(out)
     t = t.sort_values(by=["_ok", "_curv", "loglik"], ascending=[False, False, False], kind="mergesort")

@@ -1,0 +1,66 @@
+"""Invented demo data sets, made up here from seeded random numbers.
+
+None of these numbers are measurements. Each scenario is ours and is built
+so that a known re-expression straightens it; they exist to show the tool
+working and to test properties with a known truth.
+"""
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+
+__all__ = ["river_sediment", "tool_life", "fleet_fuel", "batch_defects", "assay_batches", "SCENARIOS"]
+
+INVENTED = "All numbers in this data set are invented by unbend's demo script (seeded random numbers); they are not measurements."
+
+
+def river_sediment(n: int = 60, seed: int = 11) -> pd.DataFrame:
+    """Suspended sediment (tonnes/day) against river discharge (m³/s): a power law, log-log straightens it."""
+    rng = np.random.default_rng(seed)
+    q = np.round(np.exp(rng.uniform(np.log(2.0), np.log(400.0), n)), 1)
+    load = 0.8 * q ** 1.6 * rng.lognormal(0.0, 0.35, n)
+    return pd.DataFrame({"discharge_m3s": q, "sediment_t_per_day": np.round(load, 1)})
+
+
+def tool_life(n: int = 40, seed: int = 12) -> pd.DataFrame:
+    """Cutting-tool life (minutes) against cutting speed (m/min): life falls as a power of speed."""
+    rng = np.random.default_rng(seed)
+    v = np.round(rng.uniform(80.0, 320.0, n), 0)
+    life = (400.0 / v) ** (1 / 0.25) * rng.lognormal(0.0, 0.15, n)
+    return pd.DataFrame({"cutting_speed_m_min": v, "tool_life_min": np.round(life, 2)})
+
+
+def fleet_fuel(n: int = 50, seed: int = 13) -> pd.DataFrame:
+    """Fuel economy (km per litre) against payload (tonnes): litres per km rise in a straight line,
+    so the reciprocal of km per litre straightens it."""
+    rng = np.random.default_rng(seed)
+    payload = np.round(rng.uniform(0.5, 12.0, n), 2)
+    litres_per_km = 0.22 + 0.018 * payload + rng.normal(0.0, 0.012, n)
+    return pd.DataFrame({"payload_t": payload, "km_per_litre": np.round(1.0 / litres_per_km, 3)})
+
+
+def batch_defects(n: int = 45, seed: int = 14) -> pd.DataFrame:
+    """Defect counts per production batch against batch size: Poisson counts, the square root steadies them."""
+    rng = np.random.default_rng(seed)
+    size = rng.integers(200, 5000, n)
+    defects = rng.poisson(0.004 * size)
+    return pd.DataFrame({"batch_size": size.astype(float), "defects": defects.astype(float)})
+
+
+def assay_batches(groups: int = 8, per_group: int = 12, seed: int = 15) -> pd.DataFrame:
+    """Lab assay results in batches at different concentration levels; spread grows with level."""
+    rng = np.random.default_rng(seed)
+    levels = np.exp(np.linspace(np.log(2.0), np.log(300.0), groups))
+    rows = []
+    for i, lv in enumerate(levels):
+        vals = lv * rng.lognormal(0.0, 0.12, per_group)
+        rows += [(f"batch {chr(65 + i)}", round(float(v), 3)) for v in vals]
+    return pd.DataFrame(rows, columns=["batch", "result_mg_per_l"])
+
+
+SCENARIOS = {
+    "river_sediment": (river_sediment, "sediment_t_per_day", "discharge_m3s"),
+    "tool_life": (tool_life, "tool_life_min", "cutting_speed_m_min"),
+    "fleet_fuel": (fleet_fuel, "km_per_litre", "payload_t"),
+    "batch_defects": (batch_defects, "defects", "batch_size"),
+}
