@@ -17,12 +17,12 @@ from .power import (PowerSuggestion, choose_rung, spread_power, suggest_power, s
                     symmetry_power)
 from .fitting import CAUTION, LineFit, fit
 from .diagnostics import Check
-from .scan import scan
+from .scan import best_pair, scan
 
 __version__ = "0.1.0"
 
 __all__ = [
     "UnbendError", "DomainError", "LADDER", "EXTRA_RUNGS", "Reexpression", "express", "unexpress",
     "propose_start", "rung_label", "PowerSuggestion", "choose_rung", "suggest_power", "suggest_x_power",
-    "spread_power", "symmetry_power", "LineFit", "fit", "Check", "scan", "CAUTION",
+    "spread_power", "symmetry_power", "LineFit", "fit", "Check", "scan", "best_pair", "CAUTION",
 ]

@@ -162,8 +162,9 @@ class Reexpression:
         lo = float(v.min() - self.start)
         start = propose_start(values[np.isfinite(values)] + self.start, self.power) + self.start
         cur = f" after adding the start {self.start:g}" if self.start else ""
+        what = "value" if name == "values" else f"{name} value"
         raise DomainError(
-            f"{rung_label(self.power, log10=self.log10)} needs every {name} value {need}{cur}; "
+            f"{rung_label(self.power, log10=self.log10)} needs every {what} {need}{cur}; "
             f"{nbad} of {v.size} are not (smallest {lo:g}). Add a start of {start:g} "
             f"(start={start:g}), choose power 1, or use the Yeo-Johnson family for mixed signs.",
             proposed_start=start,

@@ -10,7 +10,7 @@ from scipy import stats
 
 from ._validation import FEW_ROWS, as_matrix, check_level
 
-__all__ = ["predict", "smeared_mean", "normal_theory_mean", "slope_reading", "explain"]
+__all__ = ["predict", "smeared_mean", "smearing_terms", "normal_theory_mean", "slope_reading", "explain"]
 
 _CHUNK = 2_000_000  # residual x new-x products per block in the smearing sum
 
@@ -48,6 +48,34 @@ def smeared_mean(fit, eta: np.ndarray) -> np.ndarray:
         with np.errstate(invalid="ignore", over="ignore"):
             out[sel] = vals.mean(axis=1)
     return out
+
+
+def smearing_terms(fit):
+    """Duan's smearing mean as a short closed form, where one exists.
+
+    Returns
+    -------
+    ("factor", c)
+        for log y: mean = back-transformed median * c (less the start), with
+        ``c = mean(base**e_i)``.
+    ("moments", (m_0, m_1, ..., m_k))
+        for y powers 1/k (raw, square root, cube root, ...): mean =
+        sum_j C(k, j) eta**(k-j) m_j - start, with ``m_j = mean(e_i**j)``.
+    None
+        otherwise (the smearing sum has no short form; use :func:`predict`).
+    """
+    t = fit.y_expr
+    e = fit._resid
+    if t.family != "ladder":
+        return None
+    if t.power == 0.0:
+        base = 10.0 if t.log10 else math.e
+        return ("factor", float(np.mean(np.power(base, e))))
+    p = t.power
+    if p > 0 and abs(1.0 / p - round(1.0 / p)) < 1e-9 and round(1.0 / p) <= 4:
+        k = int(round(1.0 / p))
+        return ("moments", tuple(float(np.mean(e ** j)) for j in range(k + 1)))
+    return None
 
 
 def normal_theory_mean(fit, eta: np.ndarray) -> np.ndarray:

@@ -8,7 +8,7 @@ from ._validation import UnbendError, as_matrix, as_vector, usable_rows
 from .express import LADDER, Reexpression, rung_label
 from .fitting import fit as _fit
 
-__all__ = ["scan"]
+__all__ = ["scan", "best_pair"]
 
 COLUMNS = ["rank", "y_power", "x_power", "y_rung", "x_rung", "loglik", "curvature_p", "pattern_p", "spread_p",
            "normality_p", "r2", "r2_original", "verdict", "n"]
@@ -126,3 +126,30 @@ def _domain(t: Reexpression, v: np.ndarray, name: str) -> str:
         msg = str(e)
         return msg.split(";")[0] + f"; a start of {getattr(e, 'proposed_start', 0):g} would allow it"
     return ""
+
+
+def best_pair(y, x, *, y_start=0.0, x_start=0.0, rungs=None, y_power=None, x_power=None):
+    """The pair of rungs to use when the user has not pinned them.
+
+    With neither power given, the pair the scan ranks first. With one of
+    them pinned, the best-ranked scan row that has the pinned power.
+
+    Returns
+    -------
+    (y_power, x_power) : tuple of float
+    """
+    t = scan(y, x, y_start=y_start, x_start=x_start, rungs=rungs if rungs is not None else _with(y_power, x_power))
+    ok = ~t["verdict"].str.startswith("not possible")
+    if y_power is not None:
+        ok &= t["y_power"] == float(y_power)
+    if x_power is not None:
+        ok &= t["x_power"] == float(x_power)
+    if not ok.any():
+        raise UnbendError("no pair of rungs can be fitted to these data; add a start for values of 0 or below.")
+    row = t[ok].iloc[0]
+    return float(row["y_power"]), float(row["x_power"])
+
+
+def _with(*pinned):
+    extra = [float(p) for p in pinned if p is not None and float(p) not in LADDER]
+    return tuple(LADDER) + tuple(extra) if extra else None

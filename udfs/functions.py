@@ -1,0 +1,310 @@
+"""The unbend cell functions (xlwings user functions).
+
+Each function is thin: cells -> numbers (:mod:`unbend.udfs.cells`), one
+engine call through a content-keyed cache, result -> a cell table with a
+header row. Any problem comes back as one line of text beginning
+``unbend:``; a traceback never reaches a cell.
+
+The parameters carry no type annotations on purpose: xlwings would read
+annotations as converters. Each argument's description is given with
+``xw.arg(..., doc=...)`` and kept in :data:`FUNCTIONS` as well.
+"""
+import inspect
+
+import numpy as np
+import xlwings as xw
+
+import unbend
+from unbend import UnbendError
+from unbend.fitting import CAUTION
+
+from . import cells
+from .formula import model_formula
+
+CATEGORY = "unbend"
+
+#: name -> {"doc": function description, "args": {argument: description}}
+FUNCTIONS = {}
+
+_cache = cells.ResultCache(maxsize=128)
+
+_Y = "Range of y values (the response), one column; text, blanks and errors are skipped and counted."
+_X = "Range of x values (the predictor): one column, or a block with one column per predictor."
+_YP = "Power for y: 2, 1, 0.5, 0 (log), -0.5, -1 ... Leave blank to use the suggested rung."
+_XP = "Power for x, same choices as y_power. Leave blank to use the suggested rung."
+_YS = "Start added to y before re-expressing, for zeros or negatives (default 0)."
+_XS = "Start added to x before re-expressing (default 0)."
+
+
+def cell_function(**arg_docs):
+    """Register a cell function: safe wrapper, xlwings decorators, argument descriptions."""
+    def deco(fn):
+        params = list(inspect.signature(fn).parameters)
+        if set(params) != set(arg_docs):
+            raise RuntimeError(f"{fn.__name__}: describe exactly its arguments {params}")
+        wrapped = cells.safe(fn)
+        for name in reversed(params):
+            wrapped = xw.arg(name, doc=arg_docs[name])(wrapped)
+        wrapped = xw.func(category=CATEGORY)(wrapped)
+        FUNCTIONS[fn.__name__] = {"doc": (fn.__doc__ or "").strip(), "args": dict(arg_docs)}
+        return wrapped
+    return deco
+
+
+# ----------------------------------------------------------------------------- inputs
+
+def _yx(y, x):
+    """y as a vector and x as a block, brought to the same number of rows."""
+    yv = cells.to_numbers(y, "y")
+    X = cells.to_block(x, "x")
+    if yv.size == 0:
+        raise UnbendError("y is empty; select the y column.")
+    if X.shape[0] == 0:
+        raise UnbendError("x is empty; select the x column.")
+    if X.shape[0] == 1 and yv.size > 1 and X.shape[1] == yv.size:
+        X = X.T  # a row of x beside a row of y
+    yv, X = cells.pad_rows(yv, X)
+    return yv, X
+
+
+def _powers(yv, X, y_power, x_power, y_start, x_start):
+    yp = cells.optional_number(y_power, "y_power")
+    xp = cells.optional_number(x_power, "x_power")
+    ys = cells.optional_number(y_start, "y_start", 0.0)
+    xs = cells.optional_number(x_start, "x_start", 0.0)
+    if yp is None or xp is None:
+        yp, xp = _cache.get_or_compute(
+            ("pair", yv, X, yp, xp, ys, xs),
+            lambda: unbend.best_pair(yv, X, y_start=ys, x_start=xs, y_power=yp, x_power=xp))
+    return yp, xp, ys, xs
+
+
+def _fit(y, x, y_power, x_power, y_start, x_start, level=0.95):
+    yv, X = _yx(y, x)
+    yp, xp, ys, xs = _powers(yv, X, y_power, x_power, y_start, x_start)
+    return _cache.get_or_compute(
+        ("fit", yv, X, yp, xp, ys, xs, level),
+        lambda: unbend.fit(yv, X, y_power=yp, x_power=xp, y_start=ys, x_start=xs, level=level))
+
+
+def _level(level):
+    lv = cells.optional_number(level, "level", 0.95)
+    if lv > 1 and lv < 100:
+        lv = lv / 100.0  # 95 means 95%
+    return lv
+
+
+def _rows_table(pairs, header=("item", "value")):
+    return cells.table(list(header), [[k, v] for k, v in pairs])
+
+
+# --------------------------------------------------------------------------- functions
+
+@cell_function(y=_Y, x="Optional x range; leave out to get the power that makes y most symmetric.",
+               which='Optional: "y" (default) for the rung for y, "x" for the rung for x.')
+def UNBEND_POWER(y, x=None, which=None):
+    """The suggested ladder rung for y given x (or for x with which="x"): 2, 1, 0.5, 0 (log), -0.5, -1."""
+    w = cells.optional_text(which, "which", ("y", "x"), "y")
+    if x is None or (isinstance(x, str) and not x.strip()):
+        if w == "x":
+            raise UnbendError('which="x" needs an x range.')
+        yv = cells.to_numbers(y, "y")
+        return cells.scalar(_cache.get_or_compute(("sym", yv), lambda: unbend.symmetry_power(yv)).rung)
+    yv, X = _yx(y, x)
+    yp, xp = _cache.get_or_compute(("pair", yv, X, None, None, 0.0, 0.0), lambda: unbend.best_pair(yv, X))
+    return cells.scalar(yp if w == "y" else xp)
+
+
+_SUGGEST_HEADER = ["power for", "estimate", "low 95%", "high 95%", "rung", "rung name", "rows used",
+                   "rows skipped", "note"]
+
+
+def _suggest_row(s):
+    return [s.what, s.estimate, s.low, s.high, s.rung, s.label, s.n, s.skipped, s.note]
+
+
+@cell_function(y=_Y, x="Optional x range (one column or a block).")
+def UNBEND_SUGGEST(y, x=None):
+    """Table: suggested power for y (and for x) with its 95% interval, the rung to use and a note."""
+    if x is None or (isinstance(x, str) and not x.strip()):
+        yv = cells.to_numbers(y, "y")
+        s = _cache.get_or_compute(("sym", yv), lambda: unbend.symmetry_power(yv))
+        return cells.table(_SUGGEST_HEADER, [_suggest_row(s)])
+    yv, X = _yx(y, x)
+    yp, xp = _cache.get_or_compute(("pair", yv, X, None, None, 0.0, 0.0), lambda: unbend.best_pair(yv, X))
+    sy = _cache.get_or_compute(("sy", yv, X, xp), lambda: unbend.suggest_power(yv, X, x_power=xp))
+    sx = _cache.get_or_compute(("sx", yv, X, yp), lambda: unbend.suggest_x_power(yv, X, y_power=yp))
+    rows = [_suggest_row(sy), _suggest_row(sx)]
+    rows[0][-1] = f"(given x at power {xp:g}) " + rows[0][-1]
+    rows[1][-1] = f"(given y at power {yp:g}) " + rows[1][-1]
+    rows.append(["scan's best pair", "", "", "", "", f"y {unbend.rung_label(yp)}, x {unbend.rung_label(xp)}",
+                 "", "", "the pair UNBEND_FIT and UNBEND_PREDICT use when the powers are left blank"])
+    return cells.table(_SUGGEST_HEADER, rows)
+
+
+_SCAN_LABELS = {"rank": "rank", "y_power": "y power", "x_power": "x power", "y_rung": "y rung",
+                "x_rung": "x rung", "loglik": "log-likelihood (y units)", "curvature_p": "curvature p",
+                "pattern_p": "pattern p", "spread_p": "spread p", "normality_p": "normality p",
+                "r2": "R\u00b2 re-expressed", "r2_original": "R\u00b2 original units", "verdict": "verdict",
+                "n": "rows used"}
+
+
+@cell_function(y=_Y, x=_X, y_start=_YS, x_start=_XS)
+def UNBEND_SCAN(y, x, y_start=None, x_start=None):
+    """Table: every y rung x x rung, best first, with likelihood, curvature, spread and normality checks and a verdict."""
+    yv, X = _yx(y, x)
+    ys = cells.optional_number(y_start, "y_start", 0.0)
+    xs = cells.optional_number(x_start, "x_start", 0.0)
+    t = _cache.get_or_compute(("scan", yv, X, ys, xs), lambda: unbend.scan(yv, X, y_start=ys, x_start=xs))
+    skipped = len(t.attrs.get("skipped", ()))
+    header = [_SCAN_LABELS[c] for c in t.columns] + ["rows skipped"]
+    body = [list(r) + [skipped] for r in t.itertuples(index=False)]
+    return cells.table(header, body)
+
+
+@cell_function(y=_Y, x=_X, y_power=_YP, x_power=_XP, y_start=_YS, x_start=_XS)
+def UNBEND_FIT(y, x, y_power=None, x_power=None, y_start=None, x_start=None):
+    """Two columns, label and value: coefficients with SE and 95% intervals, R², residual SD, rows used and skipped, checks, verdict."""
+    f = _fit(y, x, y_power, x_power, y_start, x_start)
+    return _rows_table(f.rows())
+
+
+_PRED_COLS = [("median", "median"), ("mean", "mean (smearing)"), ("low", "low (new value)"),
+              ("high", "high (new value)"), ("line_low", "low (line)"), ("line_high", "high (line)"),
+              ("outside_range", "outside x range"), ("note", "note")]
+
+
+@cell_function(y=_Y, x=_X, new_x="The x value(s) to predict at: one cell, a column, or a block with one column per x.",
+               y_power=_YP, x_power=_XP,
+               what='Optional: "median", "mean", "low" or "high" to get just those values; blank for the full table.',
+               level="Interval level, default 0.95 (95 also works).", y_start=_YS, x_start=_XS)
+def UNBEND_PREDICT(y, x, new_x, y_power=None, x_power=None, what=None, level=None, y_start=None, x_start=None):
+    """Predicted y in original units at new x: median, mean (Duan's smearing), interval, and an outside-range flag."""
+    lv = _level(level)
+    w = cells.optional_text(what, "what", ("median", "mean", "low", "high"), None)
+    f = _fit(y, x, y_power, x_power, y_start, x_start, 0.95)
+    k = len(f.x_names)
+    nx = cells.to_block(new_x, "new_x") if k > 1 else cells.to_numbers(new_x, "new_x")
+    if k > 1 and nx.shape[1] != k and nx.shape[0] == k and nx.shape[1] == 1:
+        nx = nx.T
+    if nx.shape[0] == 0:
+        raise UnbendError("new_x is empty; give the x value(s) to predict at.")
+    p = f.predict(nx, level=lv)
+    if w is not None:
+        vals = p[w].to_numpy()
+        return cells.scalar(vals[0]) if vals.size == 1 else cells.column(vals)
+    xcols = list(f.x_names) if k > 1 else ["new x"]
+    src = list(f.x_names)
+    header = xcols + [lab for _, lab in _PRED_COLS] + ["y power", "x power", "rows used", "rows skipped"]
+    body = []
+    for i in range(len(p)):
+        row = [p[c].iloc[i] for c in src] + [p[c].iloc[i] for c, _ in _PRED_COLS]
+        row[len(src) + 6] = "yes" if bool(row[len(src) + 6]) else "no"
+        body.append(row + [f.y_power, f.x_power, f.n, f.n_skipped])
+    return cells.table(header, body)
+
+
+@cell_function(y=_Y, x=_X, y_power=_YP, x_power=_XP, y_start=_YS, x_start=_XS)
+def UNBEND_RESIDUALS(y, x, y_power=None, x_power=None, y_start=None, x_start=None):
+    """Table for charting: re-expressed x and y, fitted, residual, standardized residual and a flag, one row per used row."""
+    f = _fit(y, x, y_power, x_power, y_start, x_start)
+    r = f.residuals
+    n = f.n
+    xre = [f"{nm}_re" for nm in f.x_names]
+    header = (["row"] + [f"{nm} re-expressed" if len(f.x_names) > 1 else "x re-expressed" for nm in f.x_names]
+              + ["y re-expressed", "fitted", "residual", "standardized residual", "flag", "y power", "x power",
+                 "rows skipped"])
+    body = []
+    for i in range(n):
+        flags = []
+        if abs(r["standardized"].iloc[i]) > 2:
+            flags.append("large residual")
+        if r["cooks_distance"].iloc[i] > 4.0 / n:
+            flags.append("influential")
+        body.append([int(r["row"].iloc[i])] + [r[c].iloc[i] for c in xre]
+                    + [r["y_re"].iloc[i], r["fitted"].iloc[i], r["residual"].iloc[i], r["standardized"].iloc[i],
+                       ", ".join(flags), f.y_power, f.x_power, f.n_skipped])
+    return cells.table(header, body)
+
+
+@cell_function(values="Range of values, one column.", groups="Range of group labels, same length as values.")
+def UNBEND_SPREAD(values, groups):
+    """Table: the power that evens out spread across groups (log spread on log level), then each group's level and spread."""
+    v = cells.to_numbers(values, "values")
+    g = cells.to_labels(groups, "groups")
+    n = max(v.size, len(g))
+    v = np.concatenate([v, np.full(n - v.size, np.nan)])
+    g = list(g) + [None] * (n - len(g))
+    s = _cache.get_or_compute(("spread", v, tuple(map(str, g))), lambda: unbend.spread_power(v, np.array(g, dtype=object)))
+    rows = [["power for equal spread", s.estimate, s.low, s.high, s.note],
+            ["rung to use", s.rung, "", "", s.label],
+            ["rows used", s.n, "", "", ""],
+            ["rows skipped", s.skipped, "", "", ""],
+            ["group", "n", "level (median)", "spread (IQR)", "used in the line"]]
+    for r in s.detail.itertuples(index=False):
+        rows.append([r.group, r.n, r.level, r.spread, "yes" if r.used else "no"])
+    return cells.table(["item", "value", "low 95%", "high 95%", "note"], rows)
+
+
+@cell_function(values="Range of values, one column; must be above 0 (give a start otherwise).")
+def UNBEND_SYMMETRY(values):
+    """Table: the power that makes one column's distribution most symmetric (Box-Cox), its 95% interval and rung."""
+    v = cells.to_numbers(values, "values")
+    s = _cache.get_or_compute(("sym", v), lambda: unbend.symmetry_power(v))
+    return _rows_table(s.rows())
+
+
+def _shape_like(cells_in, out):
+    """A column of results, or one number for one cell."""
+    if out.size == 1 and not isinstance(cells_in, (list, tuple, np.ndarray)):
+        return cells.scalar(out[0])
+    return cells.column(out)
+
+
+@cell_function(values="Range of values to re-express.", power="Power: 2, 1, 0.5, 0 (log), -0.5, -1 or any number.",
+               start="Optional start added before re-expressing (default 0).")
+def UNBEND_APPLY(values, power, start=None):
+    """The values re-expressed at a power (negative powers as -value^power, so order is kept)."""
+    p = cells.optional_number(power, "power")
+    if p is None:
+        raise UnbendError("give a power, such as 0.5 or 0 (log).")
+    s = cells.optional_number(start, "start", 0.0)
+    v = cells.to_numbers(values, "values")
+    return _shape_like(values, unbend.express(v, p, s))
+
+
+@cell_function(values="Range of re-expressed values to take back to original units.",
+               power="The power they were re-expressed with.", start="The start that was added (default 0).")
+def UNBEND_UNDO(values, power, start=None):
+    """Re-expressed values taken back to original units (the exact inverse of UNBEND_APPLY)."""
+    p = cells.optional_number(power, "power")
+    if p is None:
+        raise UnbendError("give the power the values were re-expressed with.")
+    s = cells.optional_number(start, "start", 0.0)
+    v = cells.to_numbers(values, "values")
+    return _shape_like(values, unbend.unexpress(v, p, s))
+
+
+@cell_function(y=_Y, x="Range of x values, one column.", y_power=_YP, x_power=_XP,
+               x_cell='The cell to use as x in the formula, as text such as "B2" (default "A2").',
+               what='"median" (default) or "mean" (adds the smearing correction).')
+def UNBEND_FORMULA(y, x, y_power=None, x_power=None, x_cell=None, what=None):
+    """Text: the fitted line as a formula in built-in functions (LN, EXP, POWER ...) that a colleague can paste without the add-in."""
+    w = cells.optional_text(what, "what", ("median", "mean"), "median")
+    ref = "A2" if x_cell is None or (isinstance(x_cell, str) and not x_cell.strip()) else x_cell
+    if hasattr(ref, "address"):
+        ref = ref.address
+    if not isinstance(ref, str):
+        raise UnbendError('x_cell must be a cell reference written as text, such as "B2".')
+    f = _fit(y, x, y_power, x_power, None, None)
+    return model_formula(f, ref, w)
+
+
+@cell_function(y=_Y, x=_X, y_power=_YP, x_power=_XP)
+def UNBEND_EXPLAIN(y, x, y_power=None, x_power=None):
+    """Text: a few plain sentences on the re-expression, the slope in original units, the residual checks and cautions."""
+    f = _fit(y, x, y_power, x_power, None, None)
+    return f.explain()
+
+
+__all__ = sorted(FUNCTIONS) + ["FUNCTIONS", "CATEGORY", "CAUTION"]
