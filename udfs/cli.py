@@ -1,0 +1,178 @@
+"""The `unbend` command: `unbend demo` and `unbend report`.
+
+Bad input gives one line on stderr and a non-zero exit status, never a
+traceback. Output files are written atomically and never over the input.
+"""
+from __future__ import annotations
+
+import argparse
+import os
+import sys
+import time
+
+import unbend
+from unbend import UnbendError
+
+from .sheets import same_file
+
+EXIT_BAD_INPUT = 2
+EXIT_UNEXPECTED = 3
+
+
+class Progress:
+    """Step messages on stderr, shown only once the work has taken more than a moment."""
+
+    def __init__(self, quiet: bool = False, after: float = 0.7):
+        self.t0 = time.monotonic()
+        self.quiet = quiet
+        self.after = after
+        self.pending = []
+
+    def step(self, text: str):
+        if self.quiet:
+            return
+        self.pending.append(text)
+        if time.monotonic() - self.t0 >= self.after:
+            for t in self.pending:
+                print(f"unbend: {t} ...", file=sys.stderr, flush=True)
+            self.pending = []
+
+
+def _fail(msg: str, code: int = EXIT_BAD_INPUT) -> int:
+    msg = " ".join(str(msg).split())
+    if not msg.startswith("unbend:"):
+        msg = "unbend: " + msg
+    print(msg, file=sys.stderr)
+    return code
+
+
+def _new_folder(base: str) -> str:
+    path = os.path.abspath(base)
+    k = 1
+    while os.path.exists(path):
+        k += 1
+        path = os.path.abspath(f"{base}-{k}")
+    os.makedirs(path)
+    return path
+
+
+def cmd_demo(args) -> int:
+    from .demo import build_demo_workbooks, DEMO_REPORT_SCENARIO
+    from .readers import read_table
+    from .report import analyse, summary_lines, write_plots, write_report
+
+    prog = Progress(args.quiet)
+    folder = _new_folder(args.out or "unbend-demo")
+    prog.step("building the demo workbooks")
+    books = build_demo_workbooks(folder)
+    name, path, y_col, x_col = DEMO_REPORT_SCENARIO(books)
+    prog.step(f"analysing {os.path.basename(path)}")
+    df = read_table(path, "Data")
+    a = analyse(df, y_col, [x_col], source=f"{os.path.basename(path)}, sheet Data", invented=True)
+    prog.step("writing the report")
+    rep = write_report(a, os.path.join(folder, f"report_{name}.xlsx"))
+    pngs = write_plots(a, os.path.join(folder, f"plots_{name}"))
+    _print_summary(a)
+    print("\nFiles written:")
+    for p in books + [rep] + pngs:
+        print("  " + os.path.relpath(p))
+    return 0
+
+
+def _print_summary(a):
+    import textwrap
+
+    import pandas as pd
+
+    from .report import summary_lines
+
+    print("unbend summary")
+    print("=" * 14)
+    for line in textwrap.wrap("\n".join(summary_lines(a)[:2]), 100):
+        print(line)
+    for line in summary_lines(a)[2:]:
+        print()
+        print("\n".join(textwrap.wrap(line, 100)))
+    print("\nScan, top 5 of", len(a.scan), "pairs:")
+    cols = ["rank", "y_rung", "x_rung", "loglik", "curvature_p", "spread_p", "r2", "verdict"]
+    with pd.option_context("display.width", 200, "display.max_colwidth", 48):
+        print(a.scan.head(5)[cols].to_string(index=False, float_format=lambda v: f"{v:.4g}"))
+    print("\nPredictions in original units (median, smeared mean, prediction interval):")
+    p = a.predictions
+    show = list(a.x_names) + ["median", "mean", "low", "high", "outside_range"]
+    print(p[show].to_string(index=False, float_format=lambda v: f"{v:.4g}"))
+
+
+def cmd_report(args) -> int:
+    from .readers import ReadError, pick_columns, read_table
+    from .report import analyse, write_plots, write_report
+
+    prog = Progress(args.quiet)
+    data = os.path.abspath(args.data)
+    out = os.path.abspath(args.out) if args.out else os.path.splitext(data)[0] + "_unbend_report.xlsx"
+    if not out.lower().endswith(".xlsx"):
+        return _fail("--out must name a .xlsx file.")
+    if os.path.exists(data) and same_file(out, data):
+        return _fail("--out names the input file; unbend never writes over its input. Choose another name.")
+    prog.step(f"reading {os.path.basename(data)}")
+    df = read_table(data, args.sheet)
+    ycol = pick_columns(df, [args.y], "--y")[0]
+    xcols = pick_columns(df, args.x, "--x")
+    gcol = pick_columns(df, [args.groups], "--groups")[0] if args.groups else None
+    prog.step("choosing powers and scanning the rungs")
+    a = analyse(df, ycol, xcols, gcol, source=f"{os.path.basename(data)}" + (f", sheet {args.sheet}" if args.sheet else ""))
+    prog.step("writing the report workbook")
+    rep = write_report(a, out)
+    prog.step("drawing the plots")
+    pngs = write_plots(a, os.path.splitext(out)[0] + "_plots")
+    _print_summary(a)
+    print("\nFiles written:")
+    for p in [rep] + pngs:
+        print("  " + p)
+    return 0
+
+
+def build_parser() -> argparse.ArgumentParser:
+    p = argparse.ArgumentParser(prog="unbend", description="Choose a re-expression that straightens your data, "
+                                "fit the line and predict in original units.")
+    p.add_argument("--version", action="version", version=f"unbend {unbend.__version__}")
+    sub = p.add_subparsers(dest="command")
+    d = sub.add_parser("demo", help="build the demo workbooks in a new folder, analyse one and write its report")
+    d.add_argument("--out", help="folder to create (default: unbend-demo, or unbend-demo-2 ... if taken)")
+    d.add_argument("--quiet", action="store_true", help="no progress messages")
+    r = sub.add_parser("report", help="write a report workbook and plots for y against x from a .xlsx or .csv file")
+    r.add_argument("data", help="the .xlsx or .csv file with a header row")
+    r.add_argument("--y", required=True, help="the y column (header text)")
+    r.add_argument("--x", required=True, action="append", help="an x column; repeat for more than one")
+    r.add_argument("--sheet", help="sheet name (workbooks only; default the first sheet)")
+    r.add_argument("--groups", help="a group column, for the spread-against-level power")
+    r.add_argument("--out", help="report file to write (.xlsx); default DATA_unbend_report.xlsx")
+    r.add_argument("--quiet", action="store_true", help="no progress messages")
+    return p
+
+
+def main(argv=None) -> int:
+    parser = build_parser()
+    try:
+        args = parser.parse_args(argv)
+    except SystemExit as e:  # argparse has printed its own one-line usage error
+        return int(e.code or 0)
+    if args.command is None:
+        parser.print_help()
+        return 0
+    try:
+        return cmd_demo(args) if args.command == "demo" else cmd_report(args)
+    except UnbendError as e:
+        return _fail(str(e))
+    except KeyboardInterrupt:
+        return _fail("stopped.", 130)
+    except MemoryError:
+        return _fail("the data are too large for this machine's memory.", EXIT_UNEXPECTED)
+    except OSError as e:
+        return _fail(f"could not read or write a file ({e.strerror or e}: {e.filename or ''}).")
+    except Exception as e:  # never a traceback
+        return _fail(f"unexpected problem ({type(e).__name__}: {str(e)[:160]}); please report it.", EXIT_UNEXPECTED)
+
+
+if __name__ == "__main__":
+    sys.exit(main())

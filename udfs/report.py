@@ -1,0 +1,337 @@
+"""The report: one analysis of y against x written as a workbook and PNG plots."""
+from __future__ import annotations
+
+import os
+from dataclasses import dataclass, field
+
+import numpy as np
+import pandas as pd
+from openpyxl import Workbook
+from openpyxl.chart import Reference, ScatterChart, Series
+from openpyxl.styles import Alignment
+
+import unbend
+from unbend import UnbendError
+from unbend.fitting import CAUTION
+
+from . import cells
+from .sheets import NOTE_FONT, TITLE_FONT, atomic_save, put, set_widths, write_rows
+
+__all__ = ["Analysis", "analyse", "summary_lines", "write_report", "write_plots"]
+
+
+@dataclass
+class Analysis:
+    """Everything the report shows, computed once by the engine."""
+
+    source: str
+    y_name: str
+    x_names: list
+    y: np.ndarray
+    X: np.ndarray
+    suggest_y: unbend.PowerSuggestion
+    suggest_x: unbend.PowerSuggestion
+    scan: pd.DataFrame
+    fit: unbend.LineFit
+    predictions: pd.DataFrame
+    spread: unbend.PowerSuggestion | None = None
+    invented: bool = False
+    notes: list = field(default_factory=list)
+
+
+def _numbers(series) -> np.ndarray:
+    return cells.to_numbers(list(series), "column") if len(series) else np.array([])
+
+
+def analyse(df: pd.DataFrame, y_col: str, x_cols: list, groups_col: str | None = None, *,
+            source: str = "", invented: bool = False) -> Analysis:
+    """Run the engine over the chosen columns: suggestions, scan, fit at the best pair, predictions."""
+    n = len(df)
+    y = cells.to_numbers(list(df[y_col]), y_col)
+    X = np.column_stack([cells.to_numbers(list(df[c]), c) for c in x_cols]) if n else np.zeros((0, len(x_cols)))
+    y, X = cells.pad_rows(y, X) if X.size else (y, X)
+    if y.shape[0] != X.shape[0]:
+        y, X = cells.pad_rows(y, X)
+    scan = unbend.scan(y, X)
+    yp, xp = unbend.best_pair(y, X)
+    sy = unbend.suggest_power(y, X, x_power=xp)
+    sx = unbend.suggest_x_power(y, X, y_power=yp)
+    names = [str(c) for c in x_cols]
+    f = unbend.fit(y, X, y_power=yp, x_power=xp, x_names=names)
+    new = _prediction_points(f)
+    p = f.predict(new)
+    spread = None
+    if groups_col is not None:
+        spread = unbend.spread_power(y, np.array(cells.to_labels(list(df[groups_col]), groups_col)
+                                                 + [None] * max(0, y.size - len(df)), dtype=object)[: y.size])
+    return Analysis(source=source, y_name=str(y_col), x_names=names, y=y, X=X, suggest_y=sy, suggest_x=sx,
+                    scan=scan, fit=f, predictions=p, spread=spread, invented=invented)
+
+
+def _prediction_points(f) -> np.ndarray:
+    lo, hi = f.x_min, f.x_max
+    if len(lo) == 1:
+        pts = np.quantile(f.residuals[f.x_names[0]].to_numpy(), [0.0, 0.25, 0.5, 0.75, 1.0])
+        pts = np.append(pts, hi[0] * 1.25 if hi[0] > 0 else hi[0] + (hi[0] - lo[0]) * 0.25)
+        return np.unique(pts)
+    med = np.array([np.median(f.residuals[nm]) for nm in f.x_names])
+    rows = []
+    for q in (0.1, 0.5, 0.9):
+        r = med.copy()
+        r[0] = np.quantile(f.residuals[f.x_names[0]], q)
+        rows.append(r)
+    return np.array(rows)
+
+
+def _fmt(v) -> str:
+    if isinstance(v, (float, np.floating)):
+        if not np.isfinite(v):
+            return "unbounded" if np.isinf(v) else "-"
+        return f"{v:.4g}"
+    return str(v)
+
+
+def summary_lines(a: Analysis) -> list:
+    """The report's summary in plain sentences (also printed by the command)."""
+    f = a.fit
+    out = [f"Data: {a.source}" if a.source else "Data: (given directly)",
+           f"y = {a.y_name}; x = {', '.join(a.x_names)}. Rows used: {f.n}; rows skipped: {f.n_skipped}."]
+    if a.invented:
+        out.append("These demo numbers are invented by unbend's own script; they are not measurements.")
+    if f.skipped:
+        out.append("Skipped: " + "; ".join(f"row {r}: {why}" for r, why in f.skipped[:5])
+                   + ("; ..." if len(f.skipped) > 5 else "") + ".")
+    for s in (a.suggest_y, a.suggest_x):
+        out.append(f"Power for {s.what}: estimate {_fmt(s.estimate)}, {s.level:.0%} interval {_fmt(s.low)} to "
+                   f"{_fmt(s.high)}; use {s.label} ({s.rung:g}). {s.note}")
+    top = a.scan.iloc[0]
+    out.append(f"The scan of {len(a.scan)} pairs of rungs ranks y {top.y_rung}, x {top.x_rung} first "
+               "(ranked on likelihood, with pairs whose residuals still curve pushed down; never on R\u00b2).")
+    out.append(f"Fit: {f.y_expr.label} of y on {f.x_expr.label} of x. {f.verdict}")
+    out.append(f.slope_reading())
+    for w in f.warnings:
+        out.append("Warning: " + w)
+    if a.spread is not None:
+        out.append(f"Spread against level across groups: power {_fmt(a.spread.estimate)} "
+                   f"({_fmt(a.spread.low)} to {_fmt(a.spread.high)}); rung {a.spread.label}. {a.spread.note}")
+    out.append(CAUTION)
+    return out
+
+
+def _prediction_rows(a: Analysis):
+    p = a.predictions
+    header = list(a.x_names) + ["median", "mean (smearing)", "low (new value)", "high (new value)",
+                                "low (line)", "high (line)", "outside x range", "note"]
+    rows = []
+    for i in range(len(p)):
+        r = [p[c].iloc[i] for c in a.x_names]
+        r += [p["median"].iloc[i], p["mean"].iloc[i], p["low"].iloc[i], p["high"].iloc[i],
+              p["line_low"].iloc[i], p["line_high"].iloc[i], "yes" if p["outside_range"].iloc[i] else "no",
+              p["note"].iloc[i]]
+        rows.append(r)
+    return header, rows
+
+
+def _add_chart(ws, title, xref, yref, xlabel, ylabel, anchor):
+    ch = ScatterChart()
+    ch.title = title
+    ch.style = 2
+    ch.x_axis.title = xlabel
+    ch.y_axis.title = ylabel
+    ch.legend = None
+    s = Series(yref, xref, title=title)
+    s.marker.symbol = "circle"
+    s.marker.size = 5
+    s.marker.graphicalProperties.solidFill = "2A6F97"
+    s.marker.graphicalProperties.line.solidFill = "2A6F97"
+    s.graphicalProperties.line.noFill = True
+    ch.series.append(s)
+    ch.x_axis.delete = False
+    ch.y_axis.delete = False
+    ch.x_axis.number_format = "General"
+    ch.y_axis.number_format = "General"
+    ch.x_axis.majorGridlines = None
+    ch.height, ch.width = 9, 16
+    ws.add_chart(ch, anchor)
+
+
+def build_report_workbook(a: Analysis) -> Workbook:
+    """The report as an openpyxl workbook (not yet saved)."""
+    f = a.fit
+    wb = Workbook()
+    ws = wb.active
+    ws.title = "Summary"
+    put(ws, 1, 1, "unbend report: straightening y against x").font = TITLE_FONT
+    header, rows = _prediction_rows(a)
+    width = max(len(header), 9)
+    r = 3
+    for line in summary_lines(a) + ["", "Predictions in original units. median = the back-transformed line; mean = "
+                                    "Duan's smearing estimate; low/high (new value) = interval for one new "
+                                    "observation; low/high (line) = interval for the median."]:
+        c = put(ws, r, 1, line)
+        c.alignment = Alignment(wrap_text=True, vertical="top")
+        ws.merge_cells(start_row=r, start_column=1, end_row=r, end_column=width)
+        ws.row_dimensions[r].height = 15 * max(1, len(line) // 120 + 1)
+        r += 1
+    write_rows(ws, r, 1, header, rows, number_format="0.000")
+    set_widths(ws, {j: 15 for j in range(1, width + 1)})
+    set_widths(ws, {len(header): 40})
+
+    # scan
+    ws2 = wb.create_sheet("Scan")
+    put(ws2, 1, 1, "Every pair of rungs, best first").font = TITLE_FONT
+    put(ws2, 2, 1, "Ranked on log-likelihood in the units of y (comparable across y powers); pairs whose residuals "
+                   "curve or drift are pushed down. R\u00b2 is shown but never used to rank.").font = NOTE_FONT
+    labels = {"rank": "rank", "y_power": "y power", "x_power": "x power", "y_rung": "y rung", "x_rung": "x rung",
+              "loglik": "log-likelihood", "curvature_p": "curvature p", "pattern_p": "pattern p",
+              "spread_p": "spread p", "normality_p": "normality p", "r2": "R\u00b2 re-expressed",
+              "r2_original": "R\u00b2 original units", "verdict": "verdict", "n": "rows used"}
+    write_rows(ws2, 4, 1, [labels[c] for c in a.scan.columns], a.scan.itertuples(index=False))
+    set_widths(ws2, {1: 6, 2: 8, 3: 8, 4: 16, 5: 16, 6: 14, 13: 48})
+
+    # fit
+    ws3 = wb.create_sheet("Fit")
+    put(ws3, 1, 1, f"The line: {f.y_expr.label} of y on {f.x_expr.label} of x").font = TITLE_FONT
+    write_rows(ws3, 3, 1, ["item", "value"], f.rows(), number_format="0.000000")
+    set_widths(ws3, {1: 48, 2: 90})
+
+    # residuals with native charts
+    ws4 = wb.create_sheet("Residuals")
+    res = f.residuals
+    cols = ["row", "y"] + list(f.x_names) + ["y_re"] + [f"{nm}_re" for nm in f.x_names] + \
+           ["fitted", "residual", "standardized", "studentized", "leverage", "cooks_distance"]
+    nice = {"row": "row", "y": a.y_name, "y_re": "y re-expressed", "fitted": "fitted (re-expressed)",
+            "residual": "residual", "standardized": "standardized residual", "studentized": "studentized residual",
+            "leverage": "leverage", "cooks_distance": "Cook's distance"}
+    for nm in f.x_names:
+        nice[nm] = nm
+        nice[f"{nm}_re"] = f"{nm} re-expressed"
+    last = write_rows(ws4, 1, 1, [nice[c] for c in cols], res[cols].itertuples(index=False), number_format="0.0000")
+    n_rows = last - 1
+    ci = {c: i + 1 for i, c in enumerate(cols)}
+    ref = lambda c: Reference(ws4, min_col=ci[c], min_row=2, max_row=n_rows)  # noqa: E731
+    x0 = f.x_names[0]
+    anchor_col = len(cols) + 2
+    from openpyxl.utils import get_column_letter as L
+    set_widths(ws4, {j: 13 for j in range(1, len(cols) + 1)})
+    _add_chart(ws4, "Before: original units", ref(x0), ref("y"), x0, a.y_name, f"{L(anchor_col)}2")
+    _add_chart(ws4, f"After: {f.y_expr.label} of y against {f.x_expr.label} of x", ref(f"{x0}_re"), ref("y_re"),
+               f"{x0} re-expressed", "y re-expressed", f"{L(anchor_col)}21")
+    _add_chart(ws4, "Residuals against fitted: look for a curve or a fan", ref("fitted"), ref("residual"),
+               "fitted (re-expressed)", "residual", f"{L(anchor_col)}40")
+
+    if a.spread is not None and a.spread.detail is not None:
+        ws5 = wb.create_sheet("Spread")
+        put(ws5, 1, 1, "Spread against level across groups").font = TITLE_FONT
+        write_rows(ws5, 3, 1, ["item", "value"], a.spread.rows())
+        d = a.spread.detail
+        write_rows(ws5, 16, 1, ["group", "n", "level (median)", "spread (IQR)", "used"],
+                   [[g, n, lv, sp, "yes" if u else "no"] for g, n, lv, sp, u in d.itertuples(index=False)])
+        set_widths(ws5, {1: 28, 2: 60})
+
+    if len(f.x_names) == 1:
+        try:
+            from .portable import add_portable_sheet
+        except ImportError:  # pragma: no cover
+            add_portable_sheet = None
+        if add_portable_sheet is not None:
+            new = a.predictions[f.x_names[0]].to_numpy()
+            add_portable_sheet(wb, a.y, a.X[:, 0], new, y_power=f.y_power, x_power=f.x_power,
+                               y_start=f.y_expr.start, x_start=f.x_expr.start, invented_data=a.invented,
+                               y_name=a.y_name, x_name=f.x_names[0])
+    return wb
+
+
+def _printable(wb):
+    for ws in wb.worksheets:
+        ws.page_setup.orientation = "landscape"
+        ws.sheet_properties.pageSetUpPr.fitToPage = True
+        ws.page_setup.fitToWidth = 1
+        ws.page_setup.fitToHeight = 0
+
+
+def write_report(a: Analysis, out_path) -> str:
+    """Write the report workbook atomically; returns its path."""
+    wb = build_report_workbook(a)
+    _printable(wb)
+    return atomic_save(wb.save, out_path)
+
+
+def write_plots(a: Analysis, folder) -> list:
+    """PNG plots: before/after scatter, residuals against fitted, the scan as a picture."""
+    import matplotlib
+    matplotlib.use("Agg")
+    import matplotlib.pyplot as plt
+
+    os.makedirs(folder, exist_ok=True)
+    f = a.fit
+    res = f.residuals
+    x0 = f.x_names[0]
+    paths = []
+
+    fig, ax = plt.subplots(1, 2, figsize=(10, 4.2))
+    ax[0].scatter(res[x0], res["y"], s=14, color="#2a6f97")
+    ax[0].set_xlabel(x0)
+    ax[0].set_ylabel(a.y_name)
+    ax[0].set_title("Before: original units")
+    ax[1].scatter(res[f"{x0}_re"], res["y_re"], s=14, color="#2a6f97")
+    order = np.argsort(res[f"{x0}_re"].to_numpy())
+    if len(f.x_names) == 1:
+        ax[1].plot(res[f"{x0}_re"].to_numpy()[order], res["fitted"].to_numpy()[order], color="#c8553d")
+    ax[1].set_xlabel(f"{f.x_expr.label} of {x0}")
+    ax[1].set_ylabel(f"{f.y_expr.label} of {a.y_name}")
+    ax[1].set_title("After re-expression, with the fitted line")
+    fig.tight_layout()
+    p = os.path.join(folder, "before_after.png")
+    atomic_save(lambda t: fig.savefig(t, dpi=110, format="png"), p)
+    plt.close(fig)
+    paths.append(p)
+
+    fig, ax = plt.subplots(figsize=(6.5, 4.2))
+    ax.scatter(res["fitted"], res["residual"], s=14, color="#2a6f97")
+    ax.axhline(0, color="#888888", lw=1)
+    ax.set_xlabel("fitted value (re-expressed scale)")
+    ax.set_ylabel("residual")
+    ax.set_title("Residuals against fitted: a curve or a fan means the line does not hold")
+    ax.title.set_fontsize(10)
+    fig.tight_layout()
+    p = os.path.join(folder, "residuals.png")
+    atomic_save(lambda t: fig.savefig(t, dpi=110, format="png"), p)
+    plt.close(fig)
+    paths.append(p)
+
+    t = a.scan
+    yr = list(dict.fromkeys(t.sort_values("y_power", ascending=False)["y_power"]))
+    xr = list(dict.fromkeys(t.sort_values("x_power", ascending=False)["x_power"]))
+    grid = np.full((len(yr), len(xr)), np.nan)
+    mark = np.full((len(yr), len(xr)), "", dtype=object)
+    for row in t.itertuples(index=False):
+        i, j = yr.index(row.y_power), xr.index(row.x_power)
+        grid[i, j] = row.loglik
+        if row.verdict.startswith("not possible"):
+            mark[i, j] = "n/a"
+        elif "curve" in row.verdict or "drift" in row.verdict:
+            mark[i, j] = "bends"
+        elif "fan" in row.verdict:
+            mark[i, j] = "fans"
+        else:
+            mark[i, j] = "ok"
+        if row.rank == 1:
+            mark[i, j] = "best"
+    fig, ax = plt.subplots(figsize=(7, 5))
+    im = ax.imshow(grid, cmap="viridis", aspect="auto")
+    ax.set_xticks(range(len(xr)), [unbend.rung_label(v) for v in xr], rotation=30, ha="right")
+    ax.set_yticks(range(len(yr)), [unbend.rung_label(v) for v in yr])
+    ax.set_xlabel("x rung")
+    ax.set_ylabel("y rung")
+    for i in range(len(yr)):
+        for j in range(len(xr)):
+            ax.text(j, i, mark[i, j], ha="center", va="center", color="white", fontsize=9)
+    fig.colorbar(im, ax=ax, label="log-likelihood (higher is better)")
+    ax.set_title("Scan of rungs: likelihood, and what the residual checks say")
+    fig.tight_layout()
+    p = os.path.join(folder, "scan.png")
+    atomic_save(lambda t_: fig.savefig(t_, dpi=110, format="png"), p)
+    plt.close(fig)
+    paths.append(p)
+    return paths
