@@ -15,7 +15,7 @@ from unbend import UnbendError
 from unbend.fitting import CAUTION
 
 from . import cells
-from .sheets import NOTE_FONT, TITLE_FONT, atomic_save, put, set_widths, write_rows
+from .sheets import NOTE_FONT, TITLE_FONT, atomic_save, printable, put, set_widths, write_rows
 
 __all__ = ["Analysis", "analyse", "summary_lines", "write_report", "write_plots"]
 
@@ -151,6 +151,8 @@ def _add_chart(ws, title, xref, yref, xlabel, ylabel, anchor):
     ch.x_axis.number_format = "General"
     ch.y_axis.number_format = "General"
     ch.x_axis.majorGridlines = None
+    ch.x_axis.tickLblPos = "low"
+    ch.y_axis.tickLblPos = "low"
     ch.height, ch.width = 9, 16
     ws.add_chart(ch, anchor)
 
@@ -242,18 +244,10 @@ def build_report_workbook(a: Analysis) -> Workbook:
     return wb
 
 
-def _printable(wb):
-    for ws in wb.worksheets:
-        ws.page_setup.orientation = "landscape"
-        ws.sheet_properties.pageSetUpPr.fitToPage = True
-        ws.page_setup.fitToWidth = 1
-        ws.page_setup.fitToHeight = 0
-
-
 def write_report(a: Analysis, out_path) -> str:
     """Write the report workbook atomically; returns its path."""
     wb = build_report_workbook(a)
-    _printable(wb)
+    printable(wb)
     return atomic_save(wb.save, out_path)
 
 

@@ -9,7 +9,7 @@ import numpy as np
 from openpyxl.styles import Alignment, Font, PatternFill
 from openpyxl.utils import get_column_letter
 
-__all__ = ["put", "put_text", "write_rows", "atomic_save", "same_file", "set_widths", "HEADER_FONT",
+__all__ = ["put", "put_text", "printable", "write_rows", "atomic_save", "same_file", "set_widths", "HEADER_FONT",
            "TITLE_FONT", "NOTE_FONT"]
 
 TITLE_FONT = Font(bold=True, size=14)
@@ -69,6 +69,15 @@ def set_widths(ws, widths: dict):
     for col, w in widths.items():
         key = get_column_letter(col) if isinstance(col, int) else col
         ws.column_dimensions[key].width = w
+
+
+def printable(wb):
+    """Landscape pages, each sheet one page wide, so a printed or PDF copy reads well."""
+    for ws in wb.worksheets:
+        ws.page_setup.orientation = "landscape"
+        ws.sheet_properties.pageSetUpPr.fitToPage = True
+        ws.page_setup.fitToWidth = 1
+        ws.page_setup.fitToHeight = 0
 
 
 def same_file(a, b) -> bool:

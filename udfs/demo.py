@@ -1,0 +1,310 @@
+"""Demo workbooks built from invented, seeded data in scenarios of our own.
+
+Each workbook has: a Notes sheet in plain words; the data in a spreadsheet
+table on the Data sheet; cells that call the unbend functions (they need the
+add-in); a model sheet written entirely in built-in formulas that reads the
+Data sheet, so it recalculates without the add-in; native charts before and
+after re-expression and of the residuals; and the xlwings configuration sheet
+that names the UDF module.
+"""
+from __future__ import annotations
+
+import os
+
+import numpy as np
+from openpyxl import Workbook
+from openpyxl.chart import Reference, ScatterChart, Series
+from openpyxl.styles import Alignment
+from openpyxl.utils import get_column_letter
+from openpyxl.worksheet.formula import ArrayFormula
+from openpyxl.worksheet.table import Table, TableStyleInfo
+
+import unbend
+from unbend import demo_data
+from unbend.fitting import CAUTION
+
+from .sheets import HEADER_FONT, NOTE_FONT, TITLE_FONT, atomic_save, printable, put, set_widths
+
+__all__ = ["SCENARIOS", "build_demo_workbooks", "build_demo_workbook", "DEMO_REPORT_SCENARIO"]
+
+#: Rows below the data that the model sheet already links to, for data added later.
+LINKED_SPARE = 200
+
+SCENARIOS = {
+    "river_sediment": dict(
+        make=demo_data.river_sediment, table="RiverData", y="sediment_t_per_day", x="discharge_m3s",
+        title="River monitoring: suspended sediment against discharge",
+        story=("A river-monitoring team samples suspended sediment (tonnes per day) at different discharges "
+               "(cubic metres per second). Load climbs much faster than flow and its scatter grows with it; logs "
+               "of both straighten the relation. Loads are added up over a year, so the average (the smeared "
+               "mean), not the typical value, is what matters for totals."),
+        new_x=[5.0, 50.0, 200.0, 600.0]),
+    "tool_life": dict(
+        make=demo_data.tool_life, table="ToolData", y="tool_life_min", x="cutting_speed_m_min",
+        title="Machine shop: cutting-tool life against cutting speed",
+        story=("A machine shop records how many minutes a cutting tool lasts at different cutting speeds "
+               "(metres per minute). Life falls steeply as speed rises; logs of both turn the curve into a line."),
+        new_x=[100.0, 150.0, 250.0, 350.0]),
+    "fleet_fuel": dict(
+        make=demo_data.fleet_fuel, table="FleetData", y="km_per_litre", x="payload_t",
+        title="Delivery fleet: fuel economy against payload",
+        story=("A delivery fleet logs kilometres per litre at different payloads (tonnes). Economy is a rate; its "
+               "reciprocal, litres per kilometre, rises in a straight line with payload."),
+        new_x=[1.0, 6.0, 11.0, 15.0]),
+    "batch_defects": dict(
+        make=demo_data.batch_defects, table="DefectData", y="defects", x="batch_size",
+        title="Production: defect counts against batch size",
+        story=("A production line counts defects in each batch. Counts scatter more when they are larger; the "
+               "square root steadies them."),
+        new_x=[500.0, 2500.0, 4800.0, 7000.0]),
+    "assay_batches": dict(
+        make=demo_data.assay_batches, table="AssayData", y="result_mg_per_l", groups="batch",
+        title="Lab assays: spread grows with level",
+        story=("A lab runs assay batches at concentrations from about 2 to 300 mg/L. Within each batch the "
+               "results scatter more at higher levels; spread against level suggests the power that evens the "
+               "spread out.")),
+}
+
+
+def DEMO_REPORT_SCENARIO(paths):
+    """(name, path, y column, x column) of the scenario `unbend demo` reports on."""
+    name = "river_sediment"
+    path = next(p for p in paths if os.path.basename(p).startswith(name))
+    sc = SCENARIOS[name]
+    return name, path, sc["y"], sc["x"]
+
+
+def _notes(ws, sc, extra):
+    put(ws, 1, 1, sc["title"]).font = TITLE_FONT
+    lines = [
+        "INVENTED DATA: " + demo_data.INVENTED + " The scenario is made up to show the method.",
+        "",
+        sc["story"],
+        "",
+        "What is in this workbook:",
+        "- Data: the measurements as a table. Add new rows at the bottom of the table; formulas that use its "
+        "columns grow with it.",
+    ] + extra + [
+        "- xlwings.conf: tells the xlwings add-in to load the unbend functions (UDF module unbend.udfs).",
+        "",
+        "Cautions: " + CAUTION,
+    ]
+    for i, line in enumerate(lines, start=3):
+        c = put(ws, i, 1, line)
+        c.alignment = Alignment(wrap_text=True, vertical="top")
+        ws.row_dimensions[i].height = 15 * max(1, len(line) // 100 + 1)
+    set_widths(ws, {1: 110})
+
+
+def _data_sheet(wb, sc, df):
+    ws = wb.create_sheet("Data")
+    cols = list(df.columns)
+    for j, c in enumerate(cols, start=1):
+        put(ws, 1, j, c).font = HEADER_FONT
+    for i, row in enumerate(df.itertuples(index=False), start=2):
+        for j, v in enumerate(row, start=1):
+            put(ws, i, j, v)
+    ref = f"A1:{get_column_letter(len(cols))}{len(df) + 1}"
+    t = Table(displayName=sc["table"], ref=ref)
+    t.tableStyleInfo = TableStyleInfo(name="TableStyleLight9", showRowStripes=True)
+    ws.add_table(t)
+    set_widths(ws, {j: 22 for j in range(1, len(cols) + 1)})
+    return ws
+
+
+def _config_sheet(wb):
+    ws = wb.create_sheet("xlwings.conf")
+    put(ws, 1, 1, "UDF Modules")
+    put(ws, 1, 2, "unbend.udfs")
+    set_widths(ws, {1: 20, 2: 20})
+
+
+def _chart(ws, title, xref, yref, xlabel, ylabel, anchor):
+    ch = ScatterChart()
+    ch.title = title
+    ch.style = 2
+    ch.x_axis.title = xlabel
+    ch.y_axis.title = ylabel
+    ch.legend = None
+    s = Series(yref, xref, title=title)
+    s.marker.symbol = "circle"
+    s.marker.size = 5
+    s.marker.graphicalProperties.solidFill = "2A6F97"
+    s.marker.graphicalProperties.line.solidFill = "2A6F97"
+    s.graphicalProperties.line.noFill = True
+    ch.series.append(s)
+    ch.x_axis.delete = False
+    ch.y_axis.delete = False
+    ch.x_axis.number_format = "General"
+    ch.y_axis.number_format = "General"
+    ch.x_axis.majorGridlines = None
+    ch.x_axis.tickLblPos = "low"
+    ch.y_axis.tickLblPos = "low"
+    ch.height, ch.width = 8.5, 15
+    ws.add_chart(ch, anchor)
+
+
+def _addin_sheet(wb, sc, yref, xref, new_first, new_last):
+    ws = wb.create_sheet("With the add-in")
+    put(ws, 1, 1, "Cells that call the unbend functions").font = TITLE_FONT
+    note = put(ws, 2, 1, "These formulas need the xlwings add-in with the UDF module unbend.udfs (Windows desktop "
+                         "spreadsheet program). Without it they show a name error; the 'Model (no add-in)' sheet "
+                         "gives the same line in built-in formulas.")
+    note.font = NOTE_FONT
+    note.alignment = Alignment(wrap_text=True)
+    ws.merge_cells("A2:H2")
+    ws.row_dimensions[2].height = 32
+    rows = [
+        ("rung for y", f"=UNBEND_POWER({yref},{xref})"),
+        ("rung for x", f'=UNBEND_POWER({yref},{xref},"x")'),
+        ("in words", f"=UNBEND_EXPLAIN({yref},{xref})"),
+        ("formula to share (median)", f'=UNBEND_FORMULA({yref},{xref},,,"B20")'),
+        ("formula to share (mean)", f'=UNBEND_FORMULA({yref},{xref},,,"B20","mean")'),
+    ]
+    put(ws, 3, 3, "the formula in column B, as text").font = NOTE_FONT
+    r = 4
+    for label, formula in rows:
+        put(ws, r, 1, label).font = HEADER_FONT
+        put(ws, r, 2, formula, formula=True)
+        put(ws, r, 3, formula).font = NOTE_FONT
+        r += 1
+    put(ws, 10, 1, "Predictions at the new x values of the model sheet (one row per new x):").font = HEADER_FONT
+    put(ws, 11, 1, f"=UNBEND_PREDICT({yref},{xref},'Model (no add-in)'!$A${new_first}:$A${new_last})", formula=True)
+    put(ws, 19, 1, "x for the shared formula").font = HEADER_FONT
+    put(ws, 20, 1, "x value:")
+    put(ws, 20, 2, 50.0)
+    put(ws, 22, 1, "Suggested powers:").font = HEADER_FONT
+    put(ws, 23, 1, f"=UNBEND_SUGGEST({yref},{xref})", formula=True)
+    put(ws, 28, 1, "The fit:").font = HEADER_FONT
+    put(ws, 29, 1, f"=UNBEND_FIT({yref},{xref})", formula=True)
+    put(ws, 75, 1, "Every pair of rungs:").font = HEADER_FONT
+    put(ws, 76, 1, f"=UNBEND_SCAN({yref},{xref})", formula=True)
+    put(ws, 115, 1, "Residual table for charts:").font = HEADER_FONT
+    put(ws, 116, 1, f"=UNBEND_RESIDUALS({yref},{xref})", formula=True)
+    for r in (11, 23, 29, 76, 116):
+        put(ws, r - 1, 3, ws.cell(row=r, column=1).value).font = NOTE_FONT
+    set_widths(ws, {1: 28, 2: 30, 3: 90})
+
+
+def _link_model_to_data(model, data_ws, n_data, y_col, x_col):
+    """Point the model sheet's y and x cells at the Data sheet, for the data rows and spare rows."""
+    table = next(t for t in model.tables.values() if t.displayName.startswith("UnbendData"))
+    first = int("".join(ch for ch in table.ref.split(":")[0] if ch.isdigit())) + 1
+    for i in range(n_data + LINKED_SPARE):
+        src = i + 2
+        put(model, first + i, 1, f'=IF(ISNUMBER(Data!${y_col}${src}),Data!${y_col}${src},"")', formula=True)
+        put(model, first + i, 2, f'=IF(ISNUMBER(Data!${x_col}${src}),Data!${x_col}${src},"")', formula=True)
+    return first
+
+
+def _regression_book(name, sc):
+    from .portable import NEW_COLUMNS, add_portable_sheet
+
+    df = sc["make"]()
+    y = df[sc["y"]].to_numpy(float)
+    x = df[sc["x"]].to_numpy(float)
+    yp, xp = unbend.best_pair(y, x)
+    wb = Workbook()
+    notes = wb.active
+    notes.title = "Notes"
+    data_ws = _data_sheet(wb, sc, df)
+    model = add_portable_sheet(wb, y, x, sc["new_x"], y_power=yp, x_power=xp, title="Model (no add-in)",
+                               y_name=sc["y"], x_name=sc["x"], invented_data=True, spare_rows=LINKED_SPARE)
+    cols = list(df.columns)
+    ycol, xcol = get_column_letter(cols.index(sc["y"]) + 1), get_column_letter(cols.index(sc["x"]) + 1)
+    first = _link_model_to_data(model, data_ws, len(df), ycol, xcol)
+    new_table = [t for t in model.tables.values() if "NewX" in t.displayName][0]
+    nf, nl = (int("".join(ch for ch in part if ch.isdigit())) for part in new_table.ref.split(":"))
+    yref, xref = f"{sc['table']}[{sc['y']}]", f"{sc['table']}[{sc['x']}]"
+    _addin_sheet(wb, sc, yref, xref, nf + 1, nl)
+
+    charts = wb.create_sheet("Charts")
+    put(charts, 1, 1, "Charts (built-in; they follow the model sheet)").font = TITLE_FONT
+    last = first + len(df) + LINKED_SPARE - 1
+    ref = lambda col: Reference(model, min_col=_col_index(col), min_row=first, max_row=last)  # noqa: E731
+    _chart(charts, "Before: original units", ref("B"), ref("A"), sc["x"], sc["y"], "A3")
+    _chart(charts, f"After: {unbend.rung_label(yp)} of y against {unbend.rung_label(xp)} of x", ref("E"), ref("D"),
+           "x re-expressed", "y re-expressed", "J3")
+    _chart(charts, "Residuals against the line: look for a curve or a fan", ref("F"), ref("G"),
+           "line at this x (re-expressed)", "residual", "A21")
+    _config_sheet(wb)
+    _notes(notes, sc, [
+        f"- Model (no add-in): the straight line of {unbend.rung_label(yp)} of y on {unbend.rung_label(xp)} of x in "
+        "built-in formulas only. It reads the Data sheet, and its yellow cells (powers, starts, level) can be changed. "
+        "Predictions come back in original units with intervals and an extrapolation flag.",
+        "- With the add-in: the same analysis through the unbend cell functions (needs the xlwings add-in).",
+        "- Charts: the data before and after re-expression, and the residuals; they work without the add-in.",
+    ])
+    return wb
+
+
+def _col_index(letter: str) -> int:
+    from openpyxl.utils import column_index_from_string
+    return column_index_from_string(letter)
+
+
+def _spread_book(name, sc):
+    df = sc["make"]()
+    wb = Workbook()
+    notes = wb.active
+    notes.title = "Notes"
+    _data_sheet(wb, sc, df)
+    n = len(df)
+    last = n + 1 + LINKED_SPARE
+    groups = list(dict.fromkeys(df[sc["groups"]]))
+    ws = wb.create_sheet("Spread vs level")
+    put(ws, 1, 1, "Spread against level, in built-in formulas").font = TITLE_FONT
+    put(ws, 2, 1, "For each batch: the median (level) and the interquartile range (spread); then the straight line of "
+                  "LN(spread) on LN(level). The suggested power is 1 minus its slope (0 = log, 0.5 = square root).").font = NOTE_FONT
+    head = ["batch", "values", "level (median)", "spread (IQR)", "LN level", "LN spread"]
+    for j, h in enumerate(head, start=1):
+        put(ws, 4, j, h).font = HEADER_FONT
+    gcol, vcol = "A", "B"
+    rng_g = f"Data!${gcol}$2:${gcol}${last}"
+    rng_v = f"Data!${vcol}$2:${vcol}${last}"
+    for i, g in enumerate(groups):
+        r = 5 + i
+        put(ws, r, 1, g)
+        put(ws, r, 2, f"=COUNTIFS({rng_g},A{r},{rng_v},\"<>\")", formula=True)
+        ws[f"C{r}"] = ArrayFormula(f"C{r}", f"=MEDIAN(IF({rng_g}=A{r},IF(ISNUMBER({rng_v}),{rng_v})))")
+        ws[f"D{r}"] = ArrayFormula(
+            f"D{r}", f"=QUARTILE(IF({rng_g}=A{r},IF(ISNUMBER({rng_v}),{rng_v})),3)"
+                     f"-QUARTILE(IF({rng_g}=A{r},IF(ISNUMBER({rng_v}),{rng_v})),1)")
+        put(ws, r, 5, f"=LN(C{r})", formula=True)
+        put(ws, r, 6, f"=LN(D{r})", formula=True)
+    g_last = 4 + len(groups)
+    put(ws, g_last + 2, 1, "slope of LN spread on LN level").font = HEADER_FONT
+    put(ws, g_last + 2, 3, f"=SLOPE(F5:F{g_last},E5:E{g_last})", formula=True)
+    put(ws, g_last + 3, 1, "suggested power (1 - slope)").font = HEADER_FONT
+    put(ws, g_last + 3, 3, f"=1-C{g_last + 2}", formula=True)
+    put(ws, g_last + 4, 1, "With the add-in (interval and rung):").font = HEADER_FONT
+    yref, gref = f"{sc['table']}[{sc['y']}]", f"{sc['table']}[{sc['groups']}]"
+    put(ws, g_last + 5, 1, f"=UNBEND_SPREAD({yref},{gref})", formula=True)
+    put(ws, g_last + 20, 1, "Symmetry power of all results (with the add-in):").font = HEADER_FONT
+    put(ws, g_last + 21, 1, f"=UNBEND_SYMMETRY({yref})", formula=True)
+    set_widths(ws, {1: 30, 2: 10, 3: 16, 4: 16, 5: 12, 6: 12})
+    xr = Reference(ws, min_col=5, min_row=5, max_row=g_last)
+    yr = Reference(ws, min_col=6, min_row=5, max_row=g_last)
+    _chart(ws, "LN spread against LN level", xr, yr, "LN level (median)", "LN spread (IQR)", "H4")
+    _config_sheet(wb)
+    _notes(notes, sc, [
+        "- Spread vs level: each batch's median and interquartile range in built-in formulas, the line of LN spread "
+        "on LN level and the power it suggests; a chart of the same. The add-in cells give the interval and rung.",
+        f"- The group formulas read rows 2 to {last} of the Data sheet, so rows added to the table are included.",
+    ])
+    return wb
+
+
+def build_demo_workbook(name: str, folder) -> str:
+    """Build one demo workbook into ``folder``; returns its path."""
+    sc = SCENARIOS[name]
+    wb = _spread_book(name, sc) if "groups" in sc else _regression_book(name, sc)
+    printable(wb)
+    path = os.path.join(folder, f"{name}.xlsx")
+    return atomic_save(wb.save, path)
+
+
+def build_demo_workbooks(folder) -> list:
+    """Build every demo workbook into ``folder``; returns their paths."""
+    os.makedirs(folder, exist_ok=True)
+    return [build_demo_workbook(name, folder) for name in SCENARIOS]
