@@ -46,6 +46,9 @@ class Design:
             raise UnbendError("the x columns are collinear (one is a combination of the others); remove one.")
         self.Q = Q
 
+    def subset(self, idx: np.ndarray) -> "Design":
+        return Design(None if self.X is None else self.X[idx])
+
     def residuals(self, u: np.ndarray) -> np.ndarray:
         if self.Q is None:
             return u - u.mean()
@@ -68,6 +71,7 @@ class BoxCoxProfile:
         self.family = family
         self.design = design if design is not None else Design(None)
         self.n = v.size
+        self._v = v
         if family == "ladder":
             logv = np.log(v)
             self.m = float(logv.mean())
@@ -75,6 +79,9 @@ class BoxCoxProfile:
         else:
             self.v = v
             self.jac = float(np.sum(np.sign(v) * np.log1p(np.abs(v))))
+
+    def subset(self, idx: np.ndarray) -> "BoxCoxProfile":
+        return BoxCoxProfile(self._v[idx], self.design.subset(idx), self.family)
 
     def loglik(self, lam: float) -> float:
         """Log-likelihood in the original units of y at power ``lam``."""
@@ -95,6 +102,7 @@ class XPowerProfile:
     """Profile log-likelihood over a power shared by the x columns (x must be > 0)."""
 
     def __init__(self, yt: np.ndarray, xpos: np.ndarray):
+        self._yt, self._x = yt, xpos
         if not np.all(np.isfinite(yt)):
             raise UnbendError("y has values that cannot be re-expressed at this power; add a start or choose another power.")
         self.y = yt - yt.mean()
@@ -103,6 +111,9 @@ class XPowerProfile:
         if np.any(self.D.std(axis=0) == 0):
             raise UnbendError("x does not vary (every x value is the same); a line needs at least two different x values.")
         self.n = yt.size
+
+    def subset(self, idx: np.ndarray) -> "XPowerProfile":
+        return XPowerProfile(self._yt[idx], self._x[idx])
 
     def loglik(self, alpha: float) -> float:
         U = centred_power(self.D, alpha)
@@ -125,6 +136,73 @@ class XPowerProfile:
             r = self.y - U @ coef
             rss = float(r @ r)
         return gaussian_loglik(rss, self.n)
+
+
+#: Above this many rows a subsample finds the neighbourhood first.
+SUBSAMPLE_ABOVE = 40_000
+SUBSAMPLE_SIZE = 20_000
+
+
+class _NoShortcut(Exception):
+    pass
+
+
+def profile_max(profile, level: float, *, limit: float = 20.0):
+    """Maximum and likelihood-ratio interval of a profile object (with ``n``, ``loglik``, ``subset``).
+
+    For large data a seeded random subsample locates the maximum and the
+    interval ends; the full data then refine them inside narrow brackets, so
+    only a few dozen passes over the full data are made. The answer is the
+    full-data answer (the subsample only chooses where to look); if the
+    brackets do not hold, the full search runs instead.
+    """
+    n = profile.n
+    if n > SUBSAMPLE_ABOVE:
+        idx = np.sort(np.random.default_rng(20240611).choice(n, SUBSAMPLE_SIZE, replace=False))
+        try:
+            sub = profile.subset(idx)
+            est_s, lo_s, hi_s, _ = maximise_with_interval(sub.loglik, level, limit=limit)
+            return _refine(profile.loglik, level, est_s, lo_s, hi_s, np.sqrt(SUBSAMPLE_SIZE / n), limit)
+        except (_NoShortcut, UnbendError, np.linalg.LinAlgError):
+            pass
+    return maximise_with_interval(profile.loglik, level, limit=limit)
+
+
+def _refine(f, level, est_s, lo_s, hi_s, shrink, limit):
+    if not (np.isfinite(lo_s) and np.isfinite(hi_s)):
+        raise _NoShortcut
+    z = np.sqrt(stats.chi2.ppf(level, 1))
+    se_s = (hi_s - lo_s) / (2 * z)
+    a, b = est_s - 4 * se_s, est_s + 4 * se_s
+    fa, fm, fb = f(a), f(est_s), f(b)
+    if not (np.isfinite(fm) and fm >= fa and fm >= fb):
+        raise _NoShortcut
+    res = optimize.minimize_scalar(lambda p: -f(p), bounds=(a, b), method="bounded", options={"xatol": 1e-10})
+    est = float(res.x)
+    top = float(-res.fun)
+    if top < fm:
+        est, top = est_s, fm
+    target = top - stats.chi2.ppf(level, 1) / 2.0
+
+    def g(p):
+        v = f(p)
+        return (v if np.isfinite(v) else -np.inf) - target
+
+    ends = []
+    for direction, half in ((-1, (est_s - lo_s) * shrink), (+1, (hi_s - est_s) * shrink)):
+        inner, outer = est + direction * 0.8 * half, est + direction * 1.25 * half
+        if g(inner) <= 0:
+            inner = est
+        tries = 0
+        while g(outer) > 0:
+            inner = outer
+            outer = est + direction * (abs(outer - est) * 1.6)
+            tries += 1
+            if tries > 6 or abs(outer) > limit:
+                raise _NoShortcut
+        lo_, hi_ = sorted((inner, outer))
+        ends.append(float(optimize.brentq(g, lo_, hi_, xtol=1e-12, rtol=4 * np.finfo(float).eps, maxiter=200)))
+    return est, ends[0], ends[1], top
 
 
 def maximise_with_interval(f, level: float, *, span: float = 5.0, limit: float = 20.0):

@@ -66,7 +66,8 @@ def _fmt(p: float) -> str:
 
 
 def _is_odd_integer(p: float) -> bool:
-    return float(p).is_integer() and int(p) % 2 == 1
+    """Positive odd whole powers (1, 3, 5 ...) accept values of either sign."""
+    return p > 0 and float(p).is_integer() and int(p) % 2 == 1
 
 
 def _lowest_allowed(power: float, family: str) -> tuple[float, bool]:

@@ -8,7 +8,7 @@ import pandas as pd
 from scipy import linalg, stats
 
 from ._validation import FEW_ROWS, UnbendError, as_matrix, as_vector, check_level, usable_rows
-from .diagnostics import Check, curvature_test, normality_test, pattern_test, spread_test, verdict
+from .diagnostics import Check, curvature_test, normality_test, pattern_bins, pattern_test, spread_test, verdict
 from .express import Reexpression
 
 __all__ = ["LineFit", "fit", "CAUTION"]
@@ -143,7 +143,7 @@ class LineFit:
             ("rows skipped", self.n_skipped),
             ("curvature check p (Tukey 1 df)", self.curvature.pvalue),
             ("curvature check", _word(self.curvature, "no clear curvature", "residuals curve")),
-            ("pattern check p (Kruskal-Wallis, fitted-value bins)", self.pattern.pvalue),
+            ("pattern check p (Kruskal-Wallis across bins of x)", self.pattern.pvalue),
             ("pattern check", _word(self.pattern, "no drift with level", "residuals drift with level")),
             ("spread check p (Breusch-Pagan)", self.spread.pvalue),
             ("spread check", _word(self.spread, "even spread", "spread changes")),
@@ -165,6 +165,18 @@ class LineFit:
                 v = f"{v:.6g}"
             lines.append(f"{k:<{width}}  {v}")
         return "\n".join(lines)
+
+
+def gaussian_loglik_with_jacobian(rss: float, n: int, jac: float) -> float:
+    """Normal log-likelihood in the original units of y; NaN when it is not comparable.
+
+    ``jac`` is the sum of log |d re-expressed y / d y|. At y = 0 a power below
+    1 has an infinite derivative, so the likelihood is unbounded and says
+    nothing; such fits get NaN (a start such as 0.5 makes them comparable).
+    """
+    if not np.isfinite(jac) or rss <= 0:
+        return float("nan")
+    return float(-0.5 * n * (np.log(2 * np.pi) + 1 + np.log(rss / n)) + jac)
 
 
 def _word(c: Check, good: str, bad: str) -> str:
@@ -309,7 +321,7 @@ def fit(y, x, *, y_power=1.0, x_power=1.0, y_start=0.0, x_start=0.0, level=0.95,
         warnings.append(rows.skipped_text())
 
     curv = curvature_test(A, yt, fitted)
-    pat = pattern_test(resid, fitted)
+    pat = pattern_test(resid, pattern_bins(Xu[:, 0] if k == 1 else fitted))
     spr = spread_test(Xt, resid, fitted)
     nor = normality_test(resid)
     names = tuple(x_names) if x_names is not None else (("x",) if k == 1 else tuple(f"x{i + 1}" for i in range(k)))
@@ -317,8 +329,9 @@ def fit(y, x, *, y_power=1.0, x_power=1.0, y_start=0.0, x_start=0.0, level=0.95,
         raise UnbendError(f"x_names has {len(names)} names for {k} x columns.")
 
     # log-likelihood in original y units (Jacobian of the y re-expression included)
-    jac = float(np.sum(np.log(np.abs(y_t.derivative(yu)))))
-    ll = -0.5 * n * (np.log(2 * np.pi) + 1 + np.log(rss / n)) + jac if rss > 0 else float("inf")
+    with np.errstate(divide="ignore"):
+        jac = float(np.sum(np.log(np.abs(y_t.derivative(yu)))))
+    ll = gaussian_loglik_with_jacobian(rss, n, jac)
 
     table = pd.DataFrame({"row": np.flatnonzero(rows.used) + 1, "y": yu})
     for j, nm in enumerate(names):

@@ -187,7 +187,7 @@ def suggest_power(y, x=None, *, level=0.95, y_start=0.0, x_power=1.0, x_start=0.
         t_x.check(Xu.ravel(), "x")
         design = lik.Design(t_x.apply(Xu))
     prof = lik.BoxCoxProfile(yu + (y_start if family == "ladder" else 0.0), design, family=family)
-    est, lo, hi, top = lik.maximise_with_interval(prof.loglik, level)
+    est, lo, hi, top = lik.profile_max(prof, level)
     given = "" if Xu is None else f" given x at power {x_power:g}"
     method = f"Box-Cox profile likelihood{given}" if family == "ladder" else f"Yeo-Johnson profile likelihood{given}"
     return _suggestion(est, lo, hi, level=level, what="y", method=method, n=yu.size,
@@ -233,7 +233,7 @@ def suggest_x_power(y, x, *, level=0.95, y_power=1.0, y_start=0.0, x_start=0.0,
     t_x = Reexpression(0.0, x_start)
     t_x.check(Xu.ravel(), "x")
     prof = lik.XPowerProfile(t_y.apply(yu), Xu + x_start)
-    est, lo, hi, top = lik.maximise_with_interval(prof.loglik, level)
+    est, lo, hi, top = lik.profile_max(prof, level)
     cols = "" if Xu.shape[1] == 1 else f" (one power shared by {Xu.shape[1]} x columns)"
     return _suggestion(est, lo, hi, level=level, what="x",
                        method=f"profile likelihood over the x power (Box-Tidwell), y at power {y_power:g}{cols}",
@@ -262,6 +262,17 @@ def symmetry_power(values, *, level=0.95, start=0.0, family="ladder", rungs=None
     s = suggest_power(values, None, level=level, y_start=start, family=family, rungs=rungs)
     return PowerSuggestion(**{**s.__dict__, "what": "values",
                               "method": s.method.replace("profile likelihood", "profile likelihood, no predictor")})
+
+
+def _missing(label) -> bool:
+    if label is None:
+        return True
+    try:
+        if pd.isna(label):
+            return True
+    except (TypeError, ValueError):
+        pass
+    return str(label).strip() == ""
 
 
 def spread_power(values, groups, *, level=0.95, start=0.0, rungs=None) -> PowerSuggestion:
@@ -309,8 +320,7 @@ def spread_power(values, groups, *, level=0.95, start=0.0, rungs=None) -> PowerS
     g = np.asarray(groups, dtype=object).reshape(-1)
     if g.size != v.size:
         raise UnbendError(f"values has {v.size} rows but groups has {g.size}; give ranges of the same length.")
-    ok = np.isfinite(v) & np.array([x is not None and not (isinstance(x, float) and np.isnan(x))
-                                    and str(x).strip() != "" for x in g], dtype=bool)
+    ok = np.isfinite(v) & np.array([not _missing(x) for x in g], dtype=bool)
     rows_skipped = int((~ok).sum())
     keys = pd.Series(g[ok]).astype(str).to_numpy()
     vv = v[ok]

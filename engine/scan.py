@@ -4,9 +4,12 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 
+from scipy import stats
+
 from ._validation import UnbendError, as_matrix, as_vector, usable_rows
+from .diagnostics import ALPHA, Check, normality_test, pattern_bins, pattern_test
 from .express import LADDER, Reexpression, rung_label
-from .fitting import fit as _fit
+from .fitting import fit as _fit, gaussian_loglik_with_jacobian
 
 __all__ = ["scan", "best_pair"]
 
@@ -22,6 +25,8 @@ def _short(f) -> str:
         bad.append("drifts with level")
     if f.spread.ran and not f.spread.passed:
         bad.append("fans out")
+    if not np.isfinite(f.loglik):
+        bad.append("has no comparable likelihood (y has zeros; add a start such as 0.5)")
     if not f.curvature.ran:
         return "too few rows to check"
     if bad:
@@ -82,6 +87,137 @@ def scan(y, x, *, y_start=0.0, x_start=0.0, rungs=None) -> pd.DataFrame:
     rows = usable_rows(yv, X, need=max(3, X.shape[1] + 2))
     yu, Xu = yv[rows.used], X[rows.used]
     rungs = tuple(float(r) for r in (rungs if rungs is not None else LADDER))
+    if Xu.shape[1] == 1:
+        out = _scan_one_x(yu, Xu[:, 0], rungs, y_start, x_start)
+    else:
+        out = _scan_general(yu, Xu, rungs, y_start, x_start)
+    t = pd.DataFrame(out)
+    t["_ll"] = t["loglik"].where(np.isfinite(t["loglik"]), -np.inf)
+    t = t.sort_values(by=["_ok", "_curv", "_ll"], ascending=[False, False, False], kind="mergesort")
+    t = t.reset_index(drop=True)
+    if t["_ok"].any():
+        best = t.index[0]
+        t.loc[best, "verdict"] = "best: " + t.loc[best, "verdict"]
+    t["rank"] = np.arange(1, len(t) + 1)
+    t["loglik"] = t["loglik"].where(np.isfinite(t["loglik"]), np.nan)
+    if rows.skipped:
+        t.attrs["skipped"] = rows.skipped
+    return t[COLUMNS]
+
+
+def _impossible(rec, why):
+    rec.update(loglik=np.nan, curvature_p=np.nan, pattern_p=np.nan, spread_p=np.nan, normality_p=np.nan,
+               r2=np.nan, r2_original=np.nan, verdict=f"not possible: {why}", _ok=False, _curv=False)
+    return rec
+
+
+def _record(rec, *, loglik, curvature, pattern, spread, normality, r2, r2_original):
+    class _F:  # the fields _short reads
+        pass
+    f = _F()
+    f.curvature, f.pattern, f.spread, f.loglik = curvature, pattern, spread, loglik
+    rec.update(loglik=loglik, curvature_p=curvature.pvalue, pattern_p=pattern.pvalue, spread_p=spread.pvalue,
+               normality_p=normality.pvalue, r2=r2, r2_original=r2_original, verdict=_short(f), _ok=True,
+               _curv=curvature.passed is not False and pattern.passed is not False)
+    return rec
+
+
+def _scan_one_x(yu, xu, rungs, y_start, x_start):
+    """One x column: each rung's columns once, then each pair by a few passes over the data.
+
+    Gives the same numbers as :func:`unbend.fit` (the tests hold it to that):
+    with one x, the squared fitted value in Tukey's test spans the same
+    column as the squared re-expressed x, and the pattern bins follow x.
+    """
+    n = yu.size
+    bins = pattern_bins(xu)
+    xs = {}
+    for px in rungs:
+        t = Reexpression(px, x_start)
+        err = _domain(t, xu, "x")
+        if err:
+            xs[px] = err
+            continue
+        xt = t.apply(xu)
+        c = xt - xt.mean()
+        sxx = float(c @ c)
+        if not np.isfinite(sxx) or sxx <= 0 or np.ptp(xt) == 0:
+            xs[px] = "x does not vary at this power"
+            continue
+        q2 = c / np.sqrt(sxx)
+        w = (c / c.std()) ** 2
+        w = w - w.mean()
+        w = w - (w @ q2) * q2
+        nw = float(np.sqrt(w @ w))
+        q3 = w / nw if nw > 1e-10 * np.sqrt(n) else None
+        xs[px] = (xt, q2, q3)
+    out = []
+    for py in rungs:
+        ty = Reexpression(py, y_start)
+        y_err = _domain(ty, yu, "y")
+        if not y_err:
+            yt = ty.apply(yu)
+            ybar = yt.mean()
+            yc = yt - ybar
+            tss = float(yc @ yc)
+            jac = float(np.sum(np.log(np.abs(ty.derivative(yu)))))
+            dy = yu - yu.mean()
+            tss_orig = float(dy @ dy)
+        for px in rungs:
+            rec = {"y_power": py, "x_power": px, "y_rung": rung_label(py), "x_rung": rung_label(px), "n": int(n)}
+            xi = xs[px]
+            if y_err or isinstance(xi, str):
+                out.append(_impossible(rec, y_err or xi))
+                continue
+            if not np.all(np.isfinite(yt)):
+                out.append(_impossible(rec, "y overflows at this power"))
+                continue
+            xt, q2, q3 = xi
+            b = float(q2 @ yc)
+            resid = yc - b * q2
+            rss = float(resid @ resid)
+            fitted = yt - resid
+            # Tukey's one degree of freedom: the squared column, orthogonal to the line
+            if q3 is None or n < 5:
+                curv = Check("Tukey one-degree-of-freedom", np.nan, np.nan, None, 0.0)
+            else:
+                c3 = float(q3 @ resid)
+                df3 = n - 3
+                rss3 = rss - c3 * c3
+                if rss3 <= 0:
+                    tv, pv = (np.inf if c3 else 0.0), (0.0 if c3 else 1.0)
+                else:
+                    tv = c3 / np.sqrt(rss3 / df3)
+                    pv = float(2 * stats.t.sf(abs(tv), df3))
+                curv = Check("Tukey one-degree-of-freedom", float(tv), pv, bool(pv >= ALPHA), float(np.sign(c3)))
+            pat = pattern_test(resid, bins)
+            # Breusch-Pagan, Koenker's form, one x column
+            if n < 4:
+                spr = Check("Breusch-Pagan (Koenker)", np.nan, np.nan, None, 0.0)
+            else:
+                e2 = resid * resid
+                d = e2 - e2.mean()
+                dd = float(d @ d)
+                if dd == 0:
+                    spr = Check("Breusch-Pagan (Koenker)", 0.0, 1.0, True, 0.0)
+                else:
+                    lm = n * float(q2 @ d) ** 2 / dd
+                    pv = float(stats.chi2.sf(lm, 1))
+                    cc = np.corrcoef(np.abs(resid), fitted)[0, 1] if np.ptp(fitted) > 0 else 0.0
+                    spr = Check("Breusch-Pagan (Koenker)", float(lm), pv, bool(pv >= ALPHA),
+                                float(np.sign(cc)) if np.isfinite(cc) else 0.0)
+            nor = normality_test(resid)
+            with np.errstate(invalid="ignore", over="ignore"):
+                back = ty.invert(fitted)
+                r2o = 1.0 - float(((yu - back) ** 2).sum()) / tss_orig if tss_orig > 0 else np.nan
+            r2 = 1.0 - rss / tss if tss > 0 else np.nan
+            ll = gaussian_loglik_with_jacobian(rss, n, jac)
+            out.append(_record(rec, loglik=ll, curvature=curv, pattern=pat, spread=spr, normality=nor,
+                               r2=r2, r2_original=r2o))
+    return out
+
+
+def _scan_general(yu, Xu, rungs, y_start, x_start):
     out = []
     for py in rungs:
         y_err = _domain(Reexpression(py, y_start), yu, "y")
@@ -90,33 +226,16 @@ def scan(y, x, *, y_start=0.0, x_start=0.0, rungs=None) -> pd.DataFrame:
                    "n": int(yu.size)}
             err = y_err or _domain(Reexpression(px, x_start), Xu.ravel(), "x")
             if err:
-                rec.update(loglik=np.nan, curvature_p=np.nan, pattern_p=np.nan, spread_p=np.nan, normality_p=np.nan,
-                           r2=np.nan, r2_original=np.nan, verdict=f"not possible: {err}", _ok=False, _curv=False)
-                out.append(rec)
+                out.append(_impossible(rec, err))
                 continue
             try:
                 f = _fit(yu, Xu, y_power=py, x_power=px, y_start=y_start, x_start=x_start)
             except UnbendError as e:
-                rec.update(loglik=np.nan, curvature_p=np.nan, pattern_p=np.nan, spread_p=np.nan, normality_p=np.nan,
-                           r2=np.nan, r2_original=np.nan, verdict=f"not possible: {e}", _ok=False, _curv=False)
-                out.append(rec)
+                out.append(_impossible(rec, str(e)))
                 continue
-            rec.update(loglik=f.loglik, curvature_p=f.curvature.pvalue, pattern_p=f.pattern.pvalue,
-                       spread_p=f.spread.pvalue,
-                       normality_p=f.normality.pvalue, r2=f.r2, r2_original=f.r2_original,
-                       verdict=_short(f), _ok=True,
-                       _curv=f.curvature.passed is not False and f.pattern.passed is not False)
-            out.append(rec)
-    t = pd.DataFrame(out)
-    t = t.sort_values(by=["_ok", "_curv", "loglik"], ascending=[False, False, False], kind="mergesort")
-    t = t.reset_index(drop=True)
-    if t["_ok"].any():
-        best = t.index[0]
-        t.loc[best, "verdict"] = "best: " + t.loc[best, "verdict"]
-    t["rank"] = np.arange(1, len(t) + 1)
-    if rows.skipped:
-        t.attrs["skipped"] = rows.skipped
-    return t[COLUMNS]
+            out.append(_record(rec, loglik=f.loglik, curvature=f.curvature, pattern=f.pattern, spread=f.spread,
+                               normality=f.normality, r2=f.r2, r2_original=f.r2_original))
+    return out
 
 
 def _domain(t: Reexpression, v: np.ndarray, name: str) -> str:
