@@ -225,7 +225,8 @@ class Reexpression:
         y = np.asarray(values, dtype=float)
         p = self.power
         if self.family == "yeo-johnson":
-            return np.where(y >= 0, np.power(y + 1.0, p - 1.0), np.power(1.0 - y, 1.0 - p))
+            with np.errstate(invalid="ignore"):
+                return np.where(y >= 0, np.power(y + 1.0, p - 1.0), np.power(1.0 - y, 1.0 - p))
         v = y + self.start
         with np.errstate(all="ignore"):
             if p == 0.0:

@@ -324,6 +324,10 @@ def fit(y, x, *, y_power=1.0, x_power=1.0, y_start=0.0, x_start=0.0, level=0.95,
     pat = pattern_test(resid, pattern_bins(Xu[:, 0] if k == 1 else fitted))
     spr = spread_test(Xt, resid, fitted)
     nor = normality_test(resid)
+    if x_names is None and hasattr(x, "columns"):
+        x_names = [str(c) for c in x.columns]
+    elif x_names is None and hasattr(x, "name") and isinstance(getattr(x, "name"), str) and k == 1:
+        x_names = [x.name]
     names = tuple(x_names) if x_names is not None else (("x",) if k == 1 else tuple(f"x{i + 1}" for i in range(k)))
     if len(names) != k:
         raise UnbendError(f"x_names has {len(names)} names for {k} x columns.")

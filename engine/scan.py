@@ -160,7 +160,8 @@ def _scan_one_x(yu, xu, rungs, y_start, x_start):
             ybar = yt.mean()
             yc = yt - ybar
             tss = float(yc @ yc)
-            jac = float(np.sum(np.log(np.abs(ty.derivative(yu)))))
+            with np.errstate(divide="ignore"):
+                jac = float(np.sum(np.log(np.abs(ty.derivative(yu)))))
             dy = yu - yu.mean()
             tss_orig = float(dy @ dy)
         for px in rungs:

@@ -1,0 +1,225 @@
+"""Speed at spreadsheet scale: each target timed against its reference in the same run.
+
+Run:  python tests/benchmarks/bench.py            (all rows, medians of 5 runs)
+      python tests/benchmarks/bench.py --quick    (fewer repeats, n = 10^6 rows skipped)
+
+Prints a table of medians, the ratio to the reference, the target and whether
+it was met, and checks that the numbers equal the reference's (the engine is
+tested against the same references in tests/). Data are invented, seeded.
+Kept out of the default test run (pytest does not collect this folder).
+"""
+from __future__ import annotations
+
+import argparse
+import gc
+import statistics
+import sys
+import time
+import tracemalloc
+
+import numpy as np
+import scipy.stats as st
+from scipy import optimize
+
+import unbend
+from unbend.udfs import UNBEND_PREDICT, cells
+from unbend.udfs.functions import _cache
+
+try:
+    import statsmodels.api as sm
+    from statsmodels.stats.diagnostic import het_breuschpagan
+except ImportError:  # pragma: no cover
+    sys.exit("the benchmark needs statsmodels: pip install -e '.[test]'")
+
+
+def timed(fn, repeats):
+    out = []
+    for _ in range(repeats):
+        gc.collect()
+        t0 = time.perf_counter()
+        fn()
+        out.append(time.perf_counter() - t0)
+    return statistics.median(out)
+
+
+def data(n, seed=1):
+    rng = np.random.default_rng(seed)
+    x = rng.uniform(1.0, 100.0, n)
+    y = 2.0 * x ** 0.7 * rng.lognormal(0.0, 0.25, n)
+    return y, x
+
+
+ROWS = []
+
+
+def row(work, ours, ref, target, ok_numbers, note=""):
+    ratio = ref / ours if ref else None
+    if target.startswith("\u2265"):
+        met = ratio is not None and ratio >= float(target[1:].split("\u00d7")[0].strip())
+    else:
+        met = ours <= float(target.split()[1]) / 1000.0
+    ROWS.append((work, ours, ref, ratio, target, met and ok_numbers, note))
+    print(f"{work:<58} ours {ours * 1000:9.1f} ms  ref {ref * 1000 if ref else float('nan'):9.1f} ms  "
+          f"ratio {ratio if ratio else float('nan'):7.1f}  target {target:<10} {'met' if met and ok_numbers else 'NOT met'}"
+          f"{'  ' + note if note else ''}", flush=True)
+
+
+# 1. power for y, no predictor --------------------------------------------------------
+def bench_boxcox(n, repeats):
+    y, _ = data(n)
+    ours = timed(lambda: unbend.suggest_power(y), repeats)
+    ref = timed(lambda: st.boxcox(y, alpha=0.05), max(1, repeats // 2))
+    s = unbend.suggest_power(y)
+    lm = st.boxcox_normmax(y, method="mle")
+    _, _, ci = st.boxcox(y, alpha=0.05)
+    ok = abs(s.estimate - lm) <= 1e-6 and abs(s.low - ci[0]) <= 1e-5 and abs(s.high - ci[1]) <= 1e-5
+    row(f"power for y, no predictor, n = {n:,}", ours, ref, "\u2265 30\u00d7", ok,
+        f"d_est {abs(s.estimate - lm):.1e} d_ci {max(abs(s.low - ci[0]), abs(s.high - ci[1])):.1e}")
+
+
+# 2. power for y given one x, statsmodels inside minimize_scalar / brentq ----------------
+def sm_boxcox_given_x(y, x, level=0.95):
+    X = sm.add_constant(x)
+    gm = np.mean(np.log(y))
+
+    def llf(lam):
+        z = np.log(y) if abs(lam) < 1e-12 else (y ** lam - 1.0) / lam
+        return sm.OLS(z, X).fit().llf + (lam - 1.0) * gm * y.size
+
+    res = optimize.minimize_scalar(lambda l: -llf(l), bounds=(-3, 3), method="bounded", options={"xatol": 1e-10})
+    est, top = res.x, -res.fun
+    cut = top - st.chi2.ppf(level, 1) / 2
+    lo = optimize.brentq(lambda l: llf(l) - cut, est - 3, est, xtol=1e-12)
+    hi = optimize.brentq(lambda l: llf(l) - cut, est, est + 3, xtol=1e-12)
+    return est, lo, hi
+
+
+def bench_boxcox_x(n, repeats):
+    y, x = data(n, 2)
+    ours = timed(lambda: unbend.suggest_power(y, x), repeats)
+    ref = timed(lambda: sm_boxcox_given_x(y, x), 1)
+    s = unbend.suggest_power(y, x)
+    e, lo, hi = sm_boxcox_given_x(y, x)
+    d = max(abs(s.estimate - e), abs(s.low - lo), abs(s.high - hi))
+    row(f"power for y given one x, n = {n:,}", ours, ref, "\u2265 10\u00d7", d <= 1e-6, f"max diff {d:.1e}")
+
+
+# 3. full scan ------------------------------------------------------------------------
+def _ladder(v, p):
+    return np.log(v) if p == 0 else (v ** p if p > 0 else -(v ** p))
+
+
+def sm_scan(y, x):
+    out = []
+    k = int(np.clip(y.size // 8, 3, 10))
+    order = np.argsort(x, kind="stable")
+    g = np.empty(y.size, dtype=int)
+    g[order] = np.arange(y.size) * k // y.size
+    for py in unbend.LADDER:
+        for px in unbend.LADDER:
+            yt, xt = _ladder(y, py), _ladder(x, px)
+            X = sm.add_constant(xt)
+            m = sm.OLS(yt, X).fit()
+            c = xt - xt.mean()
+            q = (c / c.std()) ** 2
+            m2 = sm.OLS(yt, np.column_stack([X, q - q.mean()])).fit()
+            bp = het_breuschpagan(m.resid, X)
+            nt = st.normaltest(m.resid)
+            kw = st.kruskal(*[m.resid[g == i] for i in range(k)])
+            out.append((py, px, m.llf, m2.pvalues[-1], bp[1], nt.pvalue, kw.pvalue, m.rsquared))
+    return out
+
+
+def bench_scan(n, repeats):
+    y, x = data(n, 3)
+    ours = timed(lambda: unbend.scan(y, x), repeats)
+    ref = timed(lambda: sm_scan(y, x), 1)
+    t = unbend.scan(y, x).set_index(["y_power", "x_power"])
+    ok = True
+    for py, px, llf, pc, pb, pn, pk, r2 in sm_scan(y, x):
+        r = t.loc[(py, px)]
+        jac = np.sum(np.log(np.abs(py if py else 1.0) * y ** (py - 1.0)))
+        ok &= bool(np.isclose(r["loglik"], llf + jac, rtol=1e-9) and np.isclose(r["r2"], r2, rtol=1e-9)
+                   and np.isclose(r["curvature_p"], pc, rtol=1e-6, atol=1e-300)
+                   and np.isclose(r["spread_p"], pb, rtol=1e-6, atol=1e-300)
+                   and np.isclose(r["normality_p"], pn, rtol=1e-6, atol=1e-300)
+                   and np.isclose(r["pattern_p"], pk, rtol=1e-6, atol=1e-300))
+    row(f"full scan 6 x 6 rungs with checks, n = {n:,}", ours, ref, "\u2265 10\u00d7", ok)
+
+
+# 4./5. prediction cells ----------------------------------------------------------------
+def sm_predict_cell(y, x, x0):
+    X = sm.add_constant(np.log(x))
+    m = sm.OLS(np.log(y), X).fit()
+    fr = m.get_prediction(np.array([[1.0, np.log(x0)]])).summary_frame(alpha=0.05)
+    return float(np.exp(fr["mean"].iloc[0]))
+
+
+def bench_cells(repeats):
+    y, x = data(10_000, 4)
+    ylist = [[v] for v in y.tolist()]
+    xlist = [[v] for v in x.tolist()]
+    new = np.linspace(2, 98, 1000)
+    ref_one = timed(lambda: [sm_predict_cell(y, x, v) for v in new[:50]], 1) / 50
+
+    def thousand_cells():
+        for v in new:
+            UNBEND_PREDICT([r[:] for r in ylist], [r[:] for r in xlist], float(v), 0, 0, "median")
+
+    _cache.clear()
+    UNBEND_PREDICT(ylist, xlist, 50.0, 0, 0, "median")  # the first cell fits; the rest reuse it
+    ours = timed(thousand_cells, max(1, repeats // 2))
+    got = UNBEND_PREDICT(ylist, xlist, 37.0, 0, 0, "median")
+    ok = abs(got - sm_predict_cell(y, x, 37.0)) <= 1e-9 * abs(got)
+    row("1,000 single-value UNBEND_PREDICT cells, 10^4 rows", ours, ref_one * 1000, "\u2265 2\u00d7", ok,
+        "reference: statsmodels refit + get_prediction per cell")
+
+    spill_new = [[v] for v in new.tolist()]
+    ours = timed(lambda: UNBEND_PREDICT([r[:] for r in ylist], [r[:] for r in xlist], spill_new, 0, 0), repeats)
+    out = UNBEND_PREDICT(ylist, xlist, spill_new, 0, 0)
+    ok = len(out) == 1001 and abs(out[1][1] - sm_predict_cell(y, x, new[0])) <= 1e-9 * abs(out[1][1])
+    row("one UNBEND_PREDICT spilling 1,000 new x, 10^4 rows", ours, ref_one * 1000, "\u2265 100\u00d7", ok,
+        "reference: the same 1,000 statsmodels cells")
+
+
+def bench_column(repeats):
+    col = [[float(i)] for i in range(10_000)] + [[None]] * (1_048_576 - 10_000)
+    ours = timed(lambda: cells.to_numbers(col), max(repeats, 7))
+    ok = cells.to_numbers(col).size == 10_000
+    row("whole column to numbers (1,048,576 cells, 10^4 numbers)", ours, None, "\u2264 50 ms", ok)
+
+
+def bench_memory():
+    y, _ = data(1_000_000, 5)
+    tracemalloc.start()
+    unbend.suggest_power(y)
+    _, peak = tracemalloc.get_traced_memory()
+    tracemalloc.stop()
+    ratio = peak / y.nbytes
+    met = ratio <= 10
+    ROWS.append(("peak memory, power for y, n = 10^6", peak, None, ratio, "\u2264 10\u00d7 data", met, ""))
+    print(f"{'peak memory, power for y, n = 1,000,000':<58} peak {peak / 2**20:8.1f} MB  data {y.nbytes / 2**20:.1f} MB"
+          f"  ratio {ratio:5.1f}  target \u2264 10\u00d7 data  {'met' if met else 'NOT met'}", flush=True)
+
+
+def main(argv=None):
+    ap = argparse.ArgumentParser()
+    ap.add_argument("--quick", action="store_true", help="fewer repeats, skip n = 10^6")
+    a = ap.parse_args(argv)
+    reps = 3 if a.quick else 5
+    print(f"unbend benchmark, {time.strftime('%Y-%m-%d')}, numpy {np.__version__}, medians of {reps} runs\n")
+    for n in (10_000, 100_000) + (() if a.quick else (1_000_000,)):
+        bench_boxcox(n, reps)
+    bench_boxcox_x(100_000 if a.quick else 1_000_000, reps)
+    bench_scan(100_000, reps)
+    bench_cells(reps)
+    bench_column(reps)
+    if not a.quick:
+        bench_memory()
+    missed = [r[0] for r in ROWS if not r[5]]
+    print("\nall targets met" if not missed else f"\ntargets not met: {'; '.join(missed)}")
+    return 0 if not missed else 1
+
+
+if __name__ == "__main__":
+    sys.exit(main())
