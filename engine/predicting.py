@@ -2,6 +2,7 @@
 intervals for the line and for a new observation, and the slope in words."""
 from __future__ import annotations
 
+import functools
 import math
 
 import numpy as np
@@ -108,6 +109,11 @@ def normal_theory_mean(fit, eta: np.ndarray) -> np.ndarray:
     return np.full(eta.shape, np.nan)
 
 
+@functools.lru_cache(maxsize=256)
+def _t_quantile(level: float, df: int) -> float:
+    return float(stats.t.ppf(0.5 + level / 2, df))
+
+
 def predict(fit, new_x, level: float = 0.95) -> pd.DataFrame:
     """Predict y in original units at new x.
 
@@ -174,7 +180,7 @@ def predict(fit, new_x, level: float = 0.95) -> pd.DataFrame:
     g = Ac @ fit._Rinv  # se of the line = s * ||row of g||
     se_line = fit.resid_sd * np.sqrt(np.einsum("ij,ij->i", g, g))
     se_new = np.sqrt(fit.resid_sd ** 2 + se_line ** 2)
-    tq = stats.t.ppf(0.5 + level / 2, fit.df_resid)
+    tq = _t_quantile(level, fit.df_resid)
     eta[~ok] = np.nan
     inv = fit.y_expr.invert
 
@@ -195,19 +201,10 @@ def predict(fit, new_x, level: float = 0.95) -> pd.DataFrame:
             notes.append("outside the observed x range: extrapolation")
         else:
             notes.append("")
-    out = pd.DataFrame(index=range(m))
-    names = fit.x_names
-    for j, nm in enumerate(names):
-        out[nm] = X[:, j]
-    out["fitted"] = eta
-    out["median"] = inv(eta)
-    out["mean"] = smeared_mean(fit, eta)
-    out["mean_normal"] = normal_theory_mean(fit, eta)
-    out["line_low"], out["line_high"] = line_lo, line_hi
-    out["low"], out["high"] = lo, hi
-    out["outside_range"] = outside
-    out["note"] = notes
-    return out
+    cols = {nm: X[:, j] for j, nm in enumerate(fit.x_names)}
+    cols.update(fitted=eta, median=inv(eta), mean=smeared_mean(fit, eta), mean_normal=normal_theory_mean(fit, eta),
+                line_low=line_lo, line_high=line_hi, low=lo, high=hi, outside_range=outside, note=notes)
+    return pd.DataFrame(cols)
 
 
 def _pct(mult: float) -> str:

@@ -193,9 +193,10 @@ def _parse(cells, numeric: bool, name: str):
             return "row", []
         if not isinstance(cells[0], (list, tuple, np.ndarray)):
             return "row", cells
-        try:
-            return "column", [v for (v,) in cells]  # one column: every row has one cell
-        except (TypeError, ValueError):
+        try:  # one column: every row has exactly one cell (map/chain run at C speed)
+            if set(map(len, cells)) == {1}:
+                return "column", list(itertools.chain.from_iterable(cells))
+        except TypeError:
             pass
         first = cells[0]
         cells = _trim_rows(cells)  # before the checks below: a whole column is mostly blank
