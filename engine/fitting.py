@@ -75,6 +75,7 @@ class LineFit:
     verdict: str
     warnings: tuple
     loglik: float
+    y_name: str
     residuals: pd.DataFrame = field(repr=False, compare=False)
     _resid: np.ndarray = field(repr=False, compare=False)
     _mu: np.ndarray = field(repr=False, compare=False)
@@ -195,7 +196,7 @@ def _design(Xt: np.ndarray):
 
 
 def fit(y, x, *, y_power=1.0, x_power=1.0, y_start=0.0, x_start=0.0, level=0.95,
-        log10=False, y_family="ladder", x_names=None) -> LineFit:
+        log10=False, y_family="ladder", x_names=None, y_name=None) -> LineFit:
     """Fit the straight line of re-expressed y on re-expressed x by least squares.
 
     Parameters
@@ -214,6 +215,9 @@ def fit(y, x, *, y_power=1.0, x_power=1.0, y_start=0.0, x_start=0.0, level=0.95,
         Base-10 logs for power 0.
     y_family : {'ladder', 'yeo-johnson'}
     x_names : sequence of str, optional
+        Names of the x columns (default: the DataFrame's column names, or x, x1, x2 ...).
+    y_name : str, optional
+        Name of y in sentences (default: the Series name, or y).
 
     Returns
     -------
@@ -328,6 +332,8 @@ def fit(y, x, *, y_power=1.0, x_power=1.0, y_start=0.0, x_start=0.0, level=0.95,
         x_names = [str(c) for c in x.columns]
     elif x_names is None and hasattr(x, "name") and isinstance(getattr(x, "name"), str) and k == 1:
         x_names = [x.name]
+    if y_name is None:
+        y_name = y.name if isinstance(getattr(y, "name", None), str) else "y"
     names = tuple(x_names) if x_names is not None else (("x",) if k == 1 else tuple(f"x{i + 1}" for i in range(k)))
     if len(names) != k:
         raise UnbendError(f"x_names has {len(names)} names for {k} x columns.")
@@ -356,5 +362,5 @@ def fit(y, x, *, y_power=1.0, x_power=1.0, y_start=0.0, x_start=0.0, level=0.95,
         r2_original=r2o, resid_sd=float(s), df_resid=int(df), n=int(n), skipped=rows.skipped,
         x_names=names, x_min=Xu.min(axis=0), x_max=Xu.max(axis=0), curvature=curv, pattern=pat,
         spread=spr, normality=nor, verdict=verdict(r2, curv, spr, nor, n, pat), warnings=tuple(warnings),
-        loglik=float(ll), residuals=table, _resid=resid, _mu=mu, _sc=sc, _Rinv=Rinv,
+        loglik=float(ll), y_name=str(y_name), residuals=table, _resid=resid, _mu=mu, _sc=sc, _Rinv=Rinv,
     )

@@ -80,14 +80,14 @@ def choose_rung(estimate: float, low: float, high: float, rungs=None, *, what: s
     """
     rungs = tuple(float(r) for r in (rungs if rungs is not None else LADDER))
     if low <= 1.0 <= high:
-        return 1.0, f"1 lies inside the interval: no re-expression of {what} is needed."
+        return 1.0, f"1 lies inside the interval, so no re-expression of {what} is needed."
     inside = [r for r in rungs if low <= r <= high]
     if inside:
         r = min(inside, key=lambda r: (abs(r - estimate), -r))
-        return r, f"{rung_label(r)} ({r:g}) is the rung inside the interval nearest the estimate."
+        return r, "the ladder rung inside the interval that is nearest the estimate."
     r = min(rungs, key=lambda r: (abs(r - estimate), -r))
-    return r, (f"no rung lies inside the interval {low:.3g} to {high:.3g}; {rung_label(r)} ({r:g}) is the "
-               f"nearest. Consider the power {estimate:.3g} itself or a start.")
+    return r, (f"no rung lies inside the interval {low:.3g} to {high:.3g}; this is the nearest. "
+               f"Consider the power {estimate:.3g} itself, or a start.")
 
 
 def _cautions(n: int, low: float, high: float) -> str:
@@ -102,7 +102,7 @@ def _cautions(n: int, low: float, high: float) -> str:
 
 def _suggestion(est, lo, hi, *, level, what, method, n, skipped, loglik, rungs, extra="", detail=None):
     rung, note = choose_rung(est, lo, hi, rungs, what=what)
-    parts = [note]
+    parts = [note[0].upper() + note[1:]]
     c = _cautions(n, lo, hi)
     if c:
         parts.append(c)

@@ -39,7 +39,7 @@ def smeared_mean(fit, eta: np.ndarray) -> np.ndarray:
         out[ok] = np.power(base, eta[ok]) * factor - t.start
         return out
     if t.family == "ladder" and t.power == 1.0:
-        out[ok] = eta[ok] + float(e.mean())
+        out[ok] = eta[ok] + float(e.mean()) - t.start
         return out
     idx = np.flatnonzero(ok)
     step = max(1, _CHUNK // max(e.size, 1))
@@ -224,22 +224,23 @@ def slope_reading(fit) -> str:
     base_y = 10.0 if fit.y_expr.log10 else math.e
     base_x = 10.0 if fit.x_expr.log10 else math.e
     out = []
+    y = fit.y_name
     for nm, b in zip(fit.x_names, fit.coef[1:]):
         if ylog and xlog:
             e = b * math.log(base_y) / math.log(base_x)
-            out.append(f"1% more {nm} goes with about {e:.3g}% more y (doubling {nm} multiplies the typical y by "
+            out.append(f"1% more {nm} goes with about {e:.3g}% more {y} (doubling {nm} multiplies the typical {y} by "
                        f"{2 ** e:.4g}).")
         elif ylog and px == 1.0:
             mult = base_y ** b
-            out.append(f"each 1 unit more of {nm} multiplies the typical y by {mult:.4g} ({_pct(mult)}).")
+            out.append(f"each 1 unit more of {nm} multiplies the typical {y} by {mult:.4g} ({_pct(mult)}).")
         elif ylog:
-            out.append(f"each 1 unit more of {_of(fit.x_expr, nm)} multiplies the typical y by {base_y ** b:.4g}.")
+            out.append(f"each 1 unit more of {_of(fit.x_expr, nm)} multiplies the typical {y} by {base_y ** b:.4g}.")
         elif fit.y_expr.is_identity and xlog:
-            out.append(f"doubling {nm} adds {b * math.log(2) / math.log(base_x):.4g} to y.")
+            out.append(f"doubling {nm} adds {b * math.log(2) / math.log(base_x):.4g} to {y}.")
         elif fit.y_expr.is_identity and fit.x_expr.is_identity:
-            out.append(f"each 1 unit more of {nm} adds {b:.4g} to y.")
+            out.append(f"each 1 unit more of {nm} adds {b:.4g} to {y}.")
         else:
-            out.append(f"each 1 unit more of {_of(fit.x_expr, nm)} changes {_of(fit.y_expr, 'y')} by {b:.4g}; "
+            out.append(f"each 1 unit more of {_of(fit.x_expr, nm)} changes {_of(fit.y_expr, y)} by {b:.4g}; "
                        "in original units the change depends on where you are, so read it from the predictions.")
     text = " ".join(out)
     return text[0].upper() + text[1:] if text else text
@@ -248,9 +249,9 @@ def slope_reading(fit) -> str:
 def explain(fit) -> str:
     """Two or three plain sentences about a fit, with cautions."""
     if fit.y_expr.is_identity and fit.x_expr.is_identity:
-        first = "A straight line of y on x, with no re-expression."
+        first = f"A straight line of {fit.y_name} on {', '.join(fit.x_names)}, with no re-expression."
     else:
-        first = f"A straight line of {_of(fit.y_expr, 'y')} on {_of(fit.x_expr, 'x')}."
+        first = f"A straight line of {_of(fit.y_expr, fit.y_name)} on {_of(fit.x_expr, ', '.join(fit.x_names))}."
     parts = [first, fit.slope_reading(), fit.verdict]
     if fit.n < FEW_ROWS:
         parts.append(f"Only {fit.n} rows were usable, so treat all of this as tentative.")

@@ -31,7 +31,7 @@ def _short(f) -> str:
         return "too few rows to check"
     if bad:
         return "residuals " + " and ".join(bad).replace("curves", "curve").replace("fans", "fan").replace("drifts", "drift")
-    return "holds: no clear curvature, even spread"
+    return "holds (no clear curvature, even spread)"
 
 
 def scan(y, x, *, y_start=0.0, x_start=0.0, rungs=None) -> pd.DataFrame:
@@ -248,17 +248,19 @@ def _domain(t: Reexpression, v: np.ndarray, name: str) -> str:
     return ""
 
 
-def best_pair(y, x, *, y_start=0.0, x_start=0.0, rungs=None, y_power=None, x_power=None):
+def best_pair(y, x, *, y_start=0.0, x_start=0.0, rungs=None, y_power=None, x_power=None, table=None):
     """The pair of rungs to use when the user has not pinned them.
 
     With neither power given, the pair the scan ranks first. With one of
     them pinned, the best-ranked scan row that has the pinned power.
 
+    ``table`` may be a scan already made of the same data and starts.
+
     Returns
     -------
     (y_power, x_power) : tuple of float
     """
-    t = scan(y, x, y_start=y_start, x_start=x_start, rungs=rungs if rungs is not None else _with(y_power, x_power))
+    t = table if table is not None else scan(y, x, y_start=y_start, x_start=x_start, rungs=rungs if rungs is not None else _with(y_power, x_power))
     ok = ~t["verdict"].str.startswith("not possible")
     if y_power is not None:
         ok &= t["y_power"] == float(y_power)

@@ -88,10 +88,9 @@ def _print_summary(a):
 
     print("unbend summary")
     print("=" * 14)
-    for line in textwrap.wrap("\n".join(summary_lines(a)[:2]), 100):
-        print(line)
-    for line in summary_lines(a)[2:]:
-        print()
+    for i, line in enumerate(summary_lines(a)):
+        if i >= 2:
+            print()
         print("\n".join(textwrap.wrap(line, 100)))
     print("\nScan, top 5 of", len(a.scan), "pairs:")
     cols = ["rank", "y_rung", "x_rung", "loglik", "curvature_p", "spread_p", "r2", "verdict"]

@@ -20,6 +20,7 @@ from unbend.fitting import CAUTION
 
 from . import cells
 from .formula import model_formula
+from .wording import SCAN_HEADERS, prediction_headers
 
 CATEGORY = "unbend"
 
@@ -142,13 +143,6 @@ def UNBEND_SUGGEST(y, x=None):
     return cells.table(_SUGGEST_HEADER, rows)
 
 
-_SCAN_LABELS = {"rank": "rank", "y_power": "y power", "x_power": "x power", "y_rung": "y rung",
-                "x_rung": "x rung", "loglik": "log-likelihood (y units)", "curvature_p": "curvature p",
-                "pattern_p": "pattern p", "spread_p": "spread p", "normality_p": "normality p",
-                "r2": "R\u00b2 re-expressed", "r2_original": "R\u00b2 original units", "verdict": "verdict",
-                "n": "rows used"}
-
-
 @cell_function(y=_Y, x=_X, y_start=_YS, x_start=_XS)
 def UNBEND_SCAN(y, x, y_start=None, x_start=None):
     """Table: every y rung x x rung, best first, with likelihood, curvature, spread and normality checks and a verdict."""
@@ -157,7 +151,7 @@ def UNBEND_SCAN(y, x, y_start=None, x_start=None):
     xs = cells.optional_number(x_start, "x_start", 0.0)
     t = _cache.get_or_compute(("scan", yv, X, ys, xs), lambda: unbend.scan(yv, X, y_start=ys, x_start=xs))
     skipped = len(t.attrs.get("skipped", ()))
-    header = [_SCAN_LABELS[c] for c in t.columns] + ["rows skipped"]
+    header = [SCAN_HEADERS[c] for c in t.columns] + ["rows skipped"]
     body = [list(r) + [skipped] for r in t.itertuples(index=False)]
     return cells.table(header, body)
 
@@ -169,9 +163,7 @@ def UNBEND_FIT(y, x, y_power=None, x_power=None, y_start=None, x_start=None):
     return _rows_table(f.rows())
 
 
-_PRED_COLS = [("median", "median"), ("mean", "mean (smearing)"), ("low", "low (new value)"),
-              ("high", "high (new value)"), ("line_low", "low (line)"), ("line_high", "high (line)"),
-              ("outside_range", "outside x range"), ("note", "note")]
+_PRED_COLS = ["median", "mean", "low", "high", "line_low", "line_high", "outside_range", "note"]
 
 
 @cell_function(y=_Y, x=_X, new_x="The x value(s) to predict at: one cell, a column, or a block with one column per x.",
@@ -194,14 +186,13 @@ def UNBEND_PREDICT(y, x, new_x, y_power=None, x_power=None, what=None, level=Non
         vals = p[w].to_numpy()
         return cells.scalar(vals[0]) if vals.size == 1 else cells.column(vals)
     xcols = list(f.x_names) if k > 1 else ["new x"]
-    src = list(f.x_names)
-    header = xcols + [lab for _, lab in _PRED_COLS] + ["y power", "x power", "rows used", "rows skipped"]
-    body = []
-    for i in range(len(p)):
-        row = [p[c].iloc[i] for c in src] + [p[c].iloc[i] for c, _ in _PRED_COLS]
-        row[len(src) + 6] = "yes" if bool(row[len(src) + 6]) else "no"
-        body.append(row + [f.y_power, f.x_power, f.n, f.n_skipped])
-    return cells.table(header, body)
+    words = prediction_headers(lv)
+    header = xcols + [words[c] for c in _PRED_COLS] + ["y power", "x power", "rows used", "rows skipped"]
+    m = len(p)
+    columns = [p[c].to_numpy() for c in f.x_names] + [p[c].to_numpy() for c in _PRED_COLS[:-2]]
+    columns += [np.where(p["outside_range"].to_numpy(), "yes", "no"), p["note"].to_numpy()]
+    columns += [np.full(m, f.y_power), np.full(m, f.x_power), np.full(m, f.n), np.full(m, f.n_skipped)]
+    return cells.table(header, list(zip(*(c.tolist() for c in columns))))
 
 
 @cell_function(y=_Y, x=_X, y_power=_YP, x_power=_XP, y_start=_YS, x_start=_XS)

@@ -79,16 +79,22 @@ def _read_xlsx(path: str, sheet: str | None) -> pd.DataFrame:
             ws = wb[sheet]
         else:
             raise ReadError(f"no sheet named {sheet!r} in {os.path.basename(path)}; it has: {', '.join(wb.sheetnames)}.")
-        rows = ws.iter_rows(values_only=True)
-        header = None
-        for r in rows:
-            if r is not None and any(v is not None and str(v).strip() != "" for v in r):
-                header = r
-                break
-        if header is None:
-            raise ReadError(f"the sheet {ws.title!r} is empty.")
-        names = [str(h).strip() if h is not None else f"column {i + 1}" for i, h in enumerate(header)]
-        data = [list(r[:len(names)]) + [None] * (len(names) - len(r)) for r in rows]
+        try:
+            rows = ws.iter_rows(values_only=True)
+            header = None
+            for r in rows:
+                if r is not None and any(v is not None and str(v).strip() != "" for v in r):
+                    header = r
+                    break
+            if header is None:
+                raise ReadError(f"the sheet {ws.title!r} is empty.")
+            names = [str(h).strip() if h is not None else f"column {i + 1}" for i, h in enumerate(header)]
+            data = [list(r[:len(names)]) + [None] * (len(names) - len(r)) for r in rows]
+        except ReadError:
+            raise
+        except Exception as e:  # a damaged sheet inside a sound archive shows up only while reading rows
+            raise ReadError(f"{os.path.basename(path)} is damaged: the sheet {ws.title!r} could not be read "
+                            f"({type(e).__name__}). Open it in your spreadsheet program and save it again.") from None
     finally:
         wb.close()
     return pd.DataFrame(data, columns=_unique(names))
@@ -140,11 +146,11 @@ def _read_csv(path: str) -> pd.DataFrame:
     width = len(names)
     body = [(r + [""] * width)[:width] for r in rows[1:]]
     df = pd.DataFrame(body, columns=names)
-    # decimal comma: with ';' as delimiter, "1,5" means 1.5 (common practice in many locales)
+    # decimal comma: with ';' or tab as delimiter, "1,5" means 1.5 (common practice in many locales)
     for c in df.columns:
         s = df[c].str.strip()
         num = pd.to_numeric(s, errors="coerce")
-        if delim == ";" and num.isna().sum() > s.eq("").sum():
+        if delim != "," and num.isna().sum() > s.eq("").sum():
             alt = pd.to_numeric(s.str.replace(",", ".", regex=False), errors="coerce")
             if alt.notna().sum() > num.notna().sum():
                 num = alt

@@ -15,7 +15,9 @@ from unbend import UnbendError
 from unbend.fitting import CAUTION
 
 from . import cells
-from .sheets import NOTE_FONT, TITLE_FONT, atomic_save, printable, put, set_widths, write_rows
+from .sheets import (CAUTION_FONT, GENERAL, NOTE_FONT, P_FORMAT, SMART, TITLE_FONT, WARN_FILL, atomic_save, printable,
+                     put, set_widths, write_rows)
+from .wording import PREDICTION_HELP, SCAN_HEADERS, SCAN_HELP, prediction_headers
 
 __all__ = ["Analysis", "analyse", "summary_lines", "write_report", "write_plots"]
 
@@ -53,11 +55,11 @@ def analyse(df: pd.DataFrame, y_col: str, x_cols: list, groups_col: str | None =
     if y.shape[0] != X.shape[0]:
         y, X = cells.pad_rows(y, X)
     scan = unbend.scan(y, X)
-    yp, xp = unbend.best_pair(y, X)
+    yp, xp = unbend.best_pair(y, X, table=scan)
     sy = unbend.suggest_power(y, X, x_power=xp)
     sx = unbend.suggest_x_power(y, X, y_power=yp)
     names = [str(c) for c in x_cols]
-    f = unbend.fit(y, X, y_power=yp, x_power=xp, x_names=names)
+    f = unbend.fit(y, X, y_power=yp, x_power=xp, x_names=names, y_name=str(y_col))
     new = _prediction_points(f)
     p = f.predict(new)
     spread = None
@@ -91,43 +93,61 @@ def _fmt(v) -> str:
     return str(v)
 
 
+def _note(s) -> str:
+    """The suggestion's note without its skipped-rows sentence (the summary lists those once)."""
+    note = s.note.split(f" {s.skipped} row(s) skipped")[0] if s.skipped else s.note
+    return note[0].lower() + note[1:]
+
+
 def summary_lines(a: Analysis) -> list:
     """The report's summary in plain sentences (also printed by the command)."""
     f = a.fit
     out = [f"Data: {a.source}" if a.source else "Data: (given directly)",
-           f"y = {a.y_name}; x = {', '.join(a.x_names)}. Rows used: {f.n}; rows skipped: {f.n_skipped}."]
+           f"y = {a.y_name}; x = {', '.join(a.x_names)}. Rows used: {f.n}; rows skipped: {f.n_skipped}"
+           + (" (row numbers count data rows: 1 is the first row under the header)." if f.skipped else ".")]
     if a.invented:
         out.append("These demo numbers are invented by unbend's own script; they are not measurements.")
     if f.skipped:
         out.append("Skipped: " + "; ".join(f"row {r}: {why}" for r, why in f.skipped[:5])
                    + ("; ..." if len(f.skipped) > 5 else "") + ".")
+    names = {"y": a.y_name, "x": ", ".join(a.x_names)}
     for s in (a.suggest_y, a.suggest_x):
-        out.append(f"Power for {s.what}: estimate {_fmt(s.estimate)}, {s.level:.0%} interval {_fmt(s.low)} to "
-                   f"{_fmt(s.high)}; use {s.label} ({s.rung:g}). {s.note}")
+        out.append(f"Power for {names.get(s.what, s.what)}: estimate {_fmt(s.estimate)}, {s.level:.0%} interval "
+                   f"{_fmt(s.low)} to {_fmt(s.high)}. Use {s.label} ({s.rung:g}): {_note(s)}")
     top = a.scan.iloc[0]
-    out.append(f"The scan of {len(a.scan)} pairs of rungs ranks y {top.y_rung}, x {top.x_rung} first "
-               "(ranked on likelihood, with pairs whose residuals still curve pushed down; never on R\u00b2).")
-    out.append(f"Fit: {f.y_expr.label} of y on {f.x_expr.label} of x. {f.verdict}")
+    out.append(f"The scan of {len(a.scan)} pairs of rungs ranks {top.y_rung} of {a.y_name} with {top.x_rung} of "
+               f"{names['x']} first (ranked on likelihood, with pairs whose residuals still curve pushed down; "
+               "never on R\u00b2).")
+    out.append(f"Fit: {f.explain().split('. ', 1)[0].replace('A straight line', 'a straight line')}. {f.verdict}")
     out.append(f.slope_reading())
     for w in f.warnings:
-        out.append("Warning: " + w)
+        if not w.startswith(f"{f.n_skipped} row(s) skipped"):
+            out.append("Warning: " + w)
     if a.spread is not None:
         out.append(f"Spread against level across groups: power {_fmt(a.spread.estimate)} "
                    f"({_fmt(a.spread.low)} to {_fmt(a.spread.high)}); rung {a.spread.label}. {a.spread.note}")
-    out.append(CAUTION)
+    out.append("CAUTION: " + CAUTION)
     return out
+
+
+def prediction_points_text(a: Analysis) -> str:
+    if len(a.x_names) == 1:
+        return (f"Predictions at the smallest, lower-quartile, median, upper-quartile and largest observed "
+                f"{a.x_names[0]}, and at 25% beyond the largest to show what extrapolation looks like.")
+    return (f"Predictions at the 10th, 50th and 90th percentiles of {a.x_names[0]}, with the other x columns at "
+            "their medians.")
 
 
 def _prediction_rows(a: Analysis):
     p = a.predictions
-    header = list(a.x_names) + ["median", "mean (smearing)", "low (new value)", "high (new value)",
-                                "low (line)", "high (line)", "outside x range", "note"]
+    words = prediction_headers(a.fit.level)
+    cols = ["median", "mean", "low", "high", "line_low", "line_high", "outside_range", "note"]
+    header = list(a.x_names) + [words[c] for c in cols]
     rows = []
     for i in range(len(p)):
         r = [p[c].iloc[i] for c in a.x_names]
-        r += [p["median"].iloc[i], p["mean"].iloc[i], p["low"].iloc[i], p["high"].iloc[i],
-              p["line_low"].iloc[i], p["line_high"].iloc[i], "yes" if p["outside_range"].iloc[i] else "no",
-              p["note"].iloc[i]]
+        r += [p[c].iloc[i] for c in cols[:-2]]
+        r += ["yes" if p["outside_range"].iloc[i] else "no", p["note"].iloc[i]]
         rows.append(r)
     return header, rows
 
@@ -157,90 +177,126 @@ def _add_chart(ws, title, xref, yref, xlabel, ylabel, anchor):
     ws.add_chart(ch, anchor)
 
 
+def _wrapped(ws, r, text, width, font=None, per_line=120):
+    c = put(ws, r, 1, text)
+    c.alignment = Alignment(wrap_text=True, vertical="top")
+    if font is not None:
+        c.font = font
+    ws.merge_cells(start_row=r, start_column=1, end_row=r, end_column=width)
+    ws.row_dimensions[r].height = 15 * max(1, len(text) // per_line + 1)
+    return c
+
+
 def build_report_workbook(a: Analysis) -> Workbook:
     """The report as an openpyxl workbook (not yet saved)."""
     f = a.fit
     wb = Workbook()
     ws = wb.active
     ws.title = "Summary"
-    put(ws, 1, 1, "unbend report: straightening y against x").font = TITLE_FONT
+    put(ws, 1, 1, f"unbend report: {a.y_name} against {', '.join(a.x_names)}").font = TITLE_FONT
     header, rows = _prediction_rows(a)
     width = max(len(header), 9)
     r = 3
-    for line in summary_lines(a) + ["", "Predictions in original units. median = the back-transformed line; mean = "
-                                    "Duan's smearing estimate; low/high (new value) = interval for one new "
-                                    "observation; low/high (line) = interval for the median."]:
-        c = put(ws, r, 1, line)
-        c.alignment = Alignment(wrap_text=True, vertical="top")
-        ws.merge_cells(start_row=r, start_column=1, end_row=r, end_column=width)
-        ws.row_dimensions[r].height = 15 * max(1, len(line) // 120 + 1)
+    for line in summary_lines(a):
+        _wrapped(ws, r, line, width, CAUTION_FONT if line.startswith(("CAUTION", "Warning")) else None)
         r += 1
-    write_rows(ws, r, 1, header, rows, number_format="0.000")
+    r += 1
+    _wrapped(ws, r, prediction_points_text(a) + " " + PREDICTION_HELP, width, NOTE_FONT)
+    r += 1
+    top = r
+    end = write_rows(ws, r, 1, header, rows, number_format=SMART)
+    out_col = header.index("outside x range") + 1
+    for rr in range(top + 1, end):
+        if ws.cell(row=rr, column=out_col).value == "yes":
+            for cc in range(1, len(header) + 1):
+                ws.cell(row=rr, column=cc).fill = WARN_FILL
     set_widths(ws, {j: 15 for j in range(1, width + 1)})
     set_widths(ws, {len(header): 40})
 
     # scan
     ws2 = wb.create_sheet("Scan")
     put(ws2, 1, 1, "Every pair of rungs, best first").font = TITLE_FONT
-    put(ws2, 2, 1, "Ranked on log-likelihood in the units of y (comparable across y powers); pairs whose residuals "
-                   "curve or drift are pushed down. R\u00b2 is shown but never used to rank.").font = NOTE_FONT
-    labels = {"rank": "rank", "y_power": "y power", "x_power": "x power", "y_rung": "y rung", "x_rung": "x rung",
-              "loglik": "log-likelihood", "curvature_p": "curvature p", "pattern_p": "pattern p",
-              "spread_p": "spread p", "normality_p": "normality p", "r2": "R\u00b2 re-expressed",
-              "r2_original": "R\u00b2 original units", "verdict": "verdict", "n": "rows used"}
-    write_rows(ws2, 4, 1, [labels[c] for c in a.scan.columns], a.scan.itertuples(index=False))
-    set_widths(ws2, {1: 6, 2: 8, 3: 8, 4: 16, 5: 16, 6: 14, 13: 48})
+    _wrapped(ws2, 2, SCAN_HELP, 13, NOTE_FONT)
+    write_rows(ws2, 4, 1, [SCAN_HEADERS[c] for c in a.scan.columns], a.scan.itertuples(index=False),
+               number_format=GENERAL, formats={"curvature p": P_FORMAT, "pattern p": P_FORMAT, "spread p": P_FORMAT,
+                                               "normality p": P_FORMAT, "R\u00b2 re-expressed": "0.0000",
+                                               "R\u00b2 original units": "0.0000",
+                                               "log-likelihood (y units)": "0.00"})
+    set_widths(ws2, {1: 7, 2: 9, 3: 9, 4: 16, 5: 16, 6: 14, 7: 12, 8: 12, 9: 12, 10: 12, 11: 13, 12: 13, 13: 52,
+                     14: 10})
 
     # fit
     ws3 = wb.create_sheet("Fit")
-    put(ws3, 1, 1, f"The line: {f.y_expr.label} of y on {f.x_expr.label} of x").font = TITLE_FONT
-    write_rows(ws3, 3, 1, ["item", "value"], f.rows(), number_format="0.000000")
-    set_widths(ws3, {1: 48, 2: 90})
+    put(ws3, 1, 1, f"The line: {f.explain().split('. ', 1)[0][len('A straight line of '):]}").font = TITLE_FONT
+    write_rows(ws3, 3, 1, ["item", "value"], f.rows(), number_format=GENERAL,
+               row_formats={k: P_FORMAT for k, _ in f.rows() if k.endswith(": p") or " p (" in k})
+    for row in ws3.iter_rows(min_row=4, min_col=1, max_col=2):
+        for c in row:
+            c.alignment = Alignment(wrap_text=True, vertical="top", horizontal="left")
+            if isinstance(c.value, str) and len(c.value) > 70:
+                ws3.row_dimensions[c.row].height = 15 * (len(c.value) // 70 + 1)
+    set_widths(ws3, {1: 50, 2: 75})
 
     # residuals with native charts
     ws4 = wb.create_sheet("Residuals")
-    res = f.residuals
+    res = f.residuals.copy()
+    n = f.n
+    flags = []
+    for sd, cook in zip(res["standardized"], res["cooks_distance"]):
+        fl = []
+        if abs(sd) > 2:
+            fl.append("large residual")
+        if cook > 4.0 / n:
+            fl.append("influential")
+        flags.append(", ".join(fl))
+    res["flag"] = flags
     cols = ["row", "y"] + list(f.x_names) + ["y_re"] + [f"{nm}_re" for nm in f.x_names] + \
-           ["fitted", "residual", "standardized", "studentized", "leverage", "cooks_distance"]
-    nice = {"row": "row", "y": a.y_name, "y_re": "y re-expressed", "fitted": "fitted (re-expressed)",
+           ["fitted", "residual", "standardized", "studentized", "leverage", "cooks_distance", "flag"]
+    nice = {"row": "data row", "y": a.y_name, "y_re": f"{a.y_name} re-expressed", "fitted": "fitted (re-expressed)",
             "residual": "residual", "standardized": "standardized residual", "studentized": "studentized residual",
-            "leverage": "leverage", "cooks_distance": "Cook's distance"}
+            "leverage": "leverage", "cooks_distance": "Cook's distance", "flag": "flag"}
     for nm in f.x_names:
         nice[nm] = nm
         nice[f"{nm}_re"] = f"{nm} re-expressed"
-    last = write_rows(ws4, 1, 1, [nice[c] for c in cols], res[cols].itertuples(index=False), number_format="0.0000")
-    n_rows = last - 1
+    _wrapped(ws4, 1, "One row per data row used (data row 1 = the first row under the header). Standardized "
+                     "residuals beyond \u00b12 are flagged 'large residual'; a Cook's distance above 4/n (leverage "
+                     "times residual: how much the row moves the line) is flagged 'influential'.", len(cols), NOTE_FONT,
+             per_line=150)
+    last = write_rows(ws4, 2, 1, [nice[c] for c in cols], res[cols].itertuples(index=False), number_format=SMART,
+                      formats={nice[c]: "0.0000" for c in ["residual", "standardized", "studentized", "leverage",
+                                                           "cooks_distance"]})
     ci = {c: i + 1 for i, c in enumerate(cols)}
-    ref = lambda c: Reference(ws4, min_col=ci[c], min_row=2, max_row=n_rows)  # noqa: E731
+    ref = lambda c: Reference(ws4, min_col=ci[c], min_row=3, max_row=last - 1)  # noqa: E731
     x0 = f.x_names[0]
-    anchor_col = len(cols) + 2
     from openpyxl.utils import get_column_letter as L
-    set_widths(ws4, {j: 13 for j in range(1, len(cols) + 1)})
+    anchor_col = len(cols) + 2
+    set_widths(ws4, {j: 14 for j in range(1, len(cols) + 1)})
+    set_widths(ws4, {len(cols): 24})
     _add_chart(ws4, "Before: original units", ref(x0), ref("y"), x0, a.y_name, f"{L(anchor_col)}2")
-    _add_chart(ws4, f"After: {f.y_expr.label} of y against {f.x_expr.label} of x", ref(f"{x0}_re"), ref("y_re"),
-               f"{x0} re-expressed", "y re-expressed", f"{L(anchor_col)}21")
+    _add_chart(ws4, f"After: {f.y_expr.label} of {a.y_name} against {f.x_expr.label} of {x0}", ref(f"{x0}_re"),
+               ref("y_re"), f"{f.x_expr.label} of {x0}", f"{f.y_expr.label} of {a.y_name}", f"{L(anchor_col)}21")
     _add_chart(ws4, "Residuals against fitted: look for a curve or a fan", ref("fitted"), ref("residual"),
                "fitted (re-expressed)", "residual", f"{L(anchor_col)}40")
 
     if a.spread is not None and a.spread.detail is not None:
         ws5 = wb.create_sheet("Spread")
         put(ws5, 1, 1, "Spread against level across groups").font = TITLE_FONT
-        write_rows(ws5, 3, 1, ["item", "value"], a.spread.rows())
+        write_rows(ws5, 3, 1, ["item", "value"], a.spread.rows(), number_format=GENERAL)
         d = a.spread.detail
         write_rows(ws5, 16, 1, ["group", "n", "level (median)", "spread (IQR)", "used"],
-                   [[g, n, lv, sp, "yes" if u else "no"] for g, n, lv, sp, u in d.itertuples(index=False)])
-        set_widths(ws5, {1: 28, 2: 60})
+                   [[g, n_, lv, sp, "yes" if u else "no"] for g, n_, lv, sp, u in d.itertuples(index=False)],
+                   number_format=GENERAL)
+        for row in ws5.iter_rows(min_row=4, max_row=14, min_col=2, max_col=2):
+            for c in row:
+                c.alignment = Alignment(wrap_text=True, vertical="top", horizontal="left")
+        set_widths(ws5, {1: 28, 2: 70})
 
     if len(f.x_names) == 1:
-        try:
-            from .portable import add_portable_sheet
-        except ImportError:  # pragma: no cover
-            add_portable_sheet = None
-        if add_portable_sheet is not None:
-            new = a.predictions[f.x_names[0]].to_numpy()
-            add_portable_sheet(wb, a.y, a.X[:, 0], new, y_power=f.y_power, x_power=f.x_power,
-                               y_start=f.y_expr.start, x_start=f.x_expr.start, invented_data=a.invented,
-                               y_name=a.y_name, x_name=f.x_names[0])
+        from .portable import add_portable_sheet
+        new = a.predictions[f.x_names[0]].to_numpy()
+        add_portable_sheet(wb, a.y, a.X[:, 0], new, y_power=f.y_power, x_power=f.x_power,
+                           y_start=f.y_expr.start, x_start=f.x_expr.start, invented_data=a.invented,
+                           y_name=a.y_name, x_name=f.x_names[0], title="Model in formulas")
     return wb
 
 

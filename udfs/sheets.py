@@ -9,13 +9,23 @@ import numpy as np
 from openpyxl.styles import Alignment, Font, PatternFill
 from openpyxl.utils import get_column_letter
 
-__all__ = ["put", "put_text", "printable", "write_rows", "atomic_save", "same_file", "set_widths", "HEADER_FONT",
+__all__ = ["put", "put_text", "printable", "CAUTION_FONT", "WARN_FILL", "GENERAL", "P_FORMAT", "SMART", "smart_format", "write_rows", "atomic_save", "same_file", "set_widths", "HEADER_FONT",
            "TITLE_FONT", "NOTE_FONT"]
 
-TITLE_FONT = Font(bold=True, size=14)
-HEADER_FONT = Font(bold=True)
-NOTE_FONT = Font(italic=True, color="555555")
+_FACE = "Liberation Sans"  # a metric match for the common sans fonts, present wherever LibreOffice is
+TITLE_FONT = Font(name=_FACE, bold=True, size=14)
+HEADER_FONT = Font(name=_FACE, bold=True)
+NOTE_FONT = Font(name=_FACE, italic=True, color="555555")
+CAUTION_FONT = Font(name=_FACE, bold=True, color="9C2A00")
 HEADER_FILL = PatternFill("solid", fgColor="E8EEF4")
+WARN_FILL = PatternFill("solid", fgColor="FBE3D6")
+#: Numbers as the spreadsheet shows them by default (no forced decimals).
+GENERAL = "General"
+#: Pick a format by the size of each number (see :func:`smart_format`).
+SMART = "smart"
+#: p-values: tiny ones as "<0.0001" rather than 0.0000.
+P_FORMAT = '[<0.0001]"<0.0001";0.0000'
+
 _FORMULA_START = ("=", "+", "-", "@")
 
 
@@ -49,17 +59,45 @@ def put(ws, row: int, col: int, value, *, formula: bool = False, number_format: 
     return c
 
 
-def write_rows(ws, top: int, left: int, header, rows, *, number_format: str = "0.0000"):
-    """A header row then data rows; returns the row after the last one written."""
+def smart_format(v: float) -> str:
+    """A display format that shows about four significant digits, with thousands separators."""
+    a = abs(v)
+    if a >= 1000:
+        return "#,##0"
+    if a >= 100:
+        return "0.0"
+    if a >= 1 or a == 0:
+        return "0.000"
+    if a >= 0.001:
+        return "0.00000"
+    return "0.00E+00"
+
+
+def write_rows(ws, top: int, left: int, header, rows, *, number_format: str = GENERAL, formats=None,
+               row_formats=None):
+    """A header row then data rows; returns the row after the last one written.
+
+    ``formats`` maps a header to a number format for that column;
+    ``row_formats`` maps the first cell of a row to a format for its numbers.
+    """
+    formats = formats or {}
+    row_formats = row_formats or {}
+    longest = max((len(str(h)) for h in header), default=0)
     for j, h in enumerate(header):
         c = put(ws, top, left + j, h)
         c.font = HEADER_FONT
         c.fill = HEADER_FILL
-        c.alignment = Alignment(wrap_text=True, vertical="top")
+        c.alignment = Alignment(wrap_text=True, vertical="bottom", horizontal="center")
+    ws.row_dimensions[top].height = 15 * (1 + longest // 14)
+    col_fmt = [formats.get(h, number_format) for h in header]
     r = top + 1
     for row in rows:
+        row = list(row)
+        rf = row_formats.get(row[0]) if row else None
         for j, v in enumerate(row):
-            nf = number_format if isinstance(v, float) else None
+            nf = (rf or col_fmt[j] if j < len(col_fmt) else number_format) if isinstance(v, float) else None
+            if nf == SMART:
+                nf = smart_format(v) if math.isfinite(v) else None
             put(ws, r, left + j, v, number_format=nf)
         r += 1
     return r
@@ -107,6 +145,10 @@ def atomic_save(save, path) -> str:
         os.umask(umask)
         os.chmod(tmp, 0o666 & ~umask)
         os.replace(tmp, path)
+    except OSError as e:
+        if os.path.exists(tmp):
+            os.unlink(tmp)
+        raise OSError(e.errno, e.strerror or str(e), path) from None
     except BaseException:
         if os.path.exists(tmp):
             os.unlink(tmp)

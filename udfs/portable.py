@@ -1,0 +1,797 @@
+"""The portable sheet: a fitted re-expression model written entirely as built-in spreadsheet formulas.
+
+A colleague with no add-in and no Python can open the sheet in any program
+that reads .xlsx and it recalculates: change a power, a start, the level, a
+data value or a new x, and every number follows.
+
+What is on the sheet
+--------------------
+* Settings a colleague can change: y power, y start, x power, x start and
+  the interval level (yellow cells).
+* The data as a spreadsheet table (y, x) with working columns driven by the
+  settings: x of the rows used, re-expressed y and x, the line at each row and
+  the residual. Blank rows are ignored, so the table carries empty rows with
+  formulas ready for more data, and every statistic looks at a long fixed
+  block of rows (``capacity``) so that rows added below are included.
+* The line on the re-expressed scale: SLOPE, INTERCEPT, COUNT, STEYX, RSQ,
+  AVERAGE and DEVSQ of the re-expressed x, the t multiplier (TINV) and, for
+  the log, Duan's smearing factor.
+* A second table of new x values with, for each: the typical y (the line taken
+  back to original units: a median), the average y (Duan's smearing estimate,
+  a SUMPRODUCT over the residual column), the interval for the line and the
+  interval for one new observation (found on the re-expressed scale and taken
+  back end by end), and whether the new x is outside the observed x range.
+
+The re-expression of a value ``v = value + start`` at power ``p`` is ``v^p``
+for ``p > 0``, ``LN(v)`` for ``p = 0`` and ``-(v^p)`` for ``p < 0`` (common
+practice: the ladder of powers, Tukey 1977), so that order is kept. Its
+inverse is ``MAX(z,0)^(1/p)`` for ``p > 0`` (``SIGN(z)*ABS(z)^(1/p)`` for odd
+whole powers, which accept negative values), ``EXP(z)`` for ``p = 0`` and
+``(-z)^(1/p)`` for ``p < 0`` while ``z < 0``; beyond that the reciprocal-type
+scale has no finite value and the sheet shows ``unbounded``.
+
+Only functions found in both LibreOffice Calc and the common desktop
+spreadsheet programs are used (no dynamic arrays, no structured references,
+no functions newer than IFERROR; TINV rather than T.INV.2T).
+
+References
+----------
+Duan, N. (1983). Smearing estimate: a nonparametric retransformation method.
+*Journal of the American Statistical Association* 78(383), 605-610.
+Tukey, J. W. (1977). *Exploratory Data Analysis*. Addison-Wesley, ch. 5-6.
+"""
+from __future__ import annotations
+
+import math
+import numbers
+import os
+import re
+import tempfile
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+from openpyxl import Workbook
+from openpyxl.cell.cell import ILLEGAL_CHARACTERS_RE
+from openpyxl.styles import Alignment, Border, Font, PatternFill, Side
+from openpyxl.worksheet.datavalidation import DataValidation
+from openpyxl.worksheet.table import Table, TableStyleInfo
+
+import unbend
+from unbend import UnbendError
+from unbend._validation import check_level, check_power
+
+__all__ = ["add_portable_sheet", "write_portable_workbook", "append_portable_rows", "read_portable",
+           "CELL", "DATA_COLUMNS", "NEW_COLUMNS", "PRED_HEADER", "DATA_CAPTION"]
+
+# ----------------------------------------------------------------------------- layout
+#: Cells of the settings and of the line. Settings are the ones a colleague may change.
+CELL = {
+    "y_power": "B8", "y_start": "B9", "x_power": "B10", "x_start": "B11", "level": "B12",
+    "y_name": "B13", "x_name": "B14",
+    "slope": "B17", "intercept": "B18", "n": "B19", "resid_sd": "B20", "r2": "B21",
+    "x_mean": "B22", "sxx": "B23", "t": "B24", "smear": "B25", "x_min": "B26", "x_max": "B27",
+    "check": "B28",
+}
+#: Header row of the predictions table; new x values start on the next row. The data table follows below it.
+PRED_HEADER = 40
+#: New-x table columns (key, letter): results first, working columns on the re-expressed scale after.
+NEW_COLUMNS = {"new_x": "A", "median": "B", "mean": "C", "line_low": "D", "line_high": "E", "low": "F",
+               "high": "G", "outside": "H", "note": "I", "x_re": "J", "fitted": "K", "line_low_re": "L",
+               "line_high_re": "M", "low_re": "N", "high_re": "O"}
+#: Data table columns (key, letter).
+DATA_COLUMNS = {"y": "A", "x": "B", "x_used": "C", "y_re": "D", "x_re": "E", "line": "F", "residual": "G"}
+#: First words of the caption above the data table (how a reader finds it again).
+DATA_CAPTION = "Data: type y and x below"
+
+_DATA_HEAD = {
+    "x_used": "x of rows used (blank = row skipped)",
+    "y_re": "y re-expressed",
+    "x_re": "x re-expressed",
+    "line": "line at this x (re-expressed scale)",
+    "residual": "residual (blank = row not used)",
+}
+_NEW_HEAD = {
+    "new_x": "new x",
+    "median": "typical y (median)",
+    "mean": "average y (smearing mean)",
+    "line_low": "typical y: low",
+    "line_high": "typical y: high",
+    "low": "one new y: low",
+    "high": "one new y: high",
+    "outside": "outside the data's x range?",
+    "note": "note",
+    "x_re": "new x re-expressed",
+    "fitted": "line (re-expressed scale)",
+    "line_low_re": "typical y: low (re-expressed)",
+    "line_high_re": "typical y: high (re-expressed)",
+    "low_re": "one new y: low (re-expressed)",
+    "high_re": "one new y: high (re-expressed)",
+}
+
+_RIGHT = ("median", "mean", "line_low", "line_high", "low", "high", "x_re", "fitted", "line_low_re",
+          "line_high_re", "low_re", "high_re")
+_TITLE_FONT = Font(bold=True, size=15)
+_BOLD = Font(bold=True)
+_SECTION_FONT = Font(bold=True, size=12, color="1F3A5F")
+_NOTE_FONT = Font(italic=True, color="444444")
+_CAUTION_FONT = Font(bold=True, color="9C2A00")
+_INPUT_FILL = PatternFill("solid", fgColor="FFF2B3")
+_RESULT_FILL = PatternFill("solid", fgColor="E6F0E6")
+_THIN = Side(style="thin", color="999999")
+_BOX = Border(left=_THIN, right=_THIN, top=_THIN, bottom=_THIN)
+_SHEET_BAD = re.compile(r"[\[\]:*?/\\]")
+
+
+# ----------------------------------------------------------------------------- cell writing
+def _text(ws, coord: str, text, *, font=None, wrap: bool = False):
+    """Write text that must stay text (never a live formula), whatever it starts with."""
+    c = ws[coord]
+    c.value = _clean(str(text))
+    c.data_type = "s"  # openpyxl reads a leading '=' as a formula; force a plain string
+    if font is not None:
+        c.font = font
+    if wrap:
+        c.alignment = Alignment(wrap_text=True, vertical="top")
+    return c
+
+
+def _formula(ws, coord: str, text: str, *, font=None, fill=None, number_format: str | None = None):
+    if not text.startswith("="):
+        raise AssertionError("formula text must start with '='")
+    c = ws[coord]
+    c.value = text
+    if number_format:
+        c.number_format = number_format
+    if font is not None:
+        c.font = font
+    if fill is not None:
+        c.fill = fill
+    return c
+
+
+def _clean(s: str) -> str:
+    return ILLEGAL_CHARACTERS_RE.sub("", s)[:32767]
+
+
+def _data_value(v):
+    """What a data value becomes in a cell, read the way the engine reads it.
+
+    Finite numbers (and text that reads as a finite number, as the engine
+    reads it) become numbers; None, NaN and infinity become blank; booleans
+    stay booleans (not numbers, so skipped, like the engine); any other value
+    becomes text.
+    """
+    if isinstance(v, np.generic):
+        v = v.item()
+    if v is None:
+        return None
+    if isinstance(v, bool):
+        return v
+    if isinstance(v, numbers.Real):
+        f = float(v)
+        return f if math.isfinite(f) else None
+    if isinstance(v, str):
+        try:
+            f = float(v)
+        except ValueError:
+            return v
+        return f if math.isfinite(f) else None
+    return str(v)
+
+
+def _put_data(ws, coord: str, v):
+    val = _data_value(v)
+    c = ws[coord]
+    if isinstance(val, str):
+        _text(ws, coord, val)
+    else:
+        c.value = val
+    return c
+
+
+def _digits(typical: float, sig: int = 6) -> str:
+    """A fixed-decimals number format showing about ``sig`` significant digits at the size ``typical``.
+
+    Formats change only what is displayed; the cells keep every digit.
+    """
+    if not math.isfinite(typical) or typical <= 0:
+        return "General"
+    dec = int(min(9, max(0, sig - 1 - math.floor(math.log10(typical)))))
+    return "#,##0" + ("." + "0" * dec if dec else "")
+
+
+def _typical(values) -> float:
+    v = np.abs(np.asarray(values, dtype=float))
+    v = v[np.isfinite(v) & (v > 0)]
+    return float(np.median(v)) if v.size else float("nan")
+
+
+def _engine_number(val) -> float:
+    return float(val) if isinstance(val, float) else float("nan")
+
+
+# ----------------------------------------------------------------------------- formula text
+def _reexpress(v: str, p: str) -> str:
+    """Re-expression of value ``v`` (already including the start) at power cell ``p``; #N/A outside its domain.
+
+    p > 0: v^p (v >= 0, or any v for an odd whole power); p = 0: LN(v) (v > 0);
+    p < 0: -(v^p) (v > 0). The sign for p < 0 keeps order (common practice).
+    """
+    ok = f"IF({p}>0,OR({v}>=0,AND({p}=INT({p}),MOD({p},2)=1)),{v}>0)"
+    val = f"IF({p}>0,({v})^{p},IF({p}=0,LN({v}),-(({v})^{p})))"
+    return f"IF({ok},{val},NA())"
+
+
+def _invert(z: str, p: str, s: str) -> str:
+    """Inverse re-expression of ``z`` at power cell ``p``, minus the start cell ``s``."""
+    odd = f"AND({p}=INT({p}),MOD({p},2)=1)"
+    return (f"IF({p}>0,IF({odd},SIGN({z})*ABS({z})^(1/{p}),MAX({z},0)^(1/{p}))-{s},"
+            f"IF({p}=0,EXP({z})-{s},IF({z}<0,(-{z})^(1/{p})-{s},\"unbounded\")))")
+
+
+def _smeared(z: str, p: str, s: str, mask: str, res: str, n: str, factor: str) -> str:
+    """Duan's smearing mean at fitted value ``z``: (1/n) * sum over used rows of g(z + e_i), minus the start.
+
+    ``mask`` is --ISNUMBER(x used) over the whole block, ``res`` the residual
+    block (0 or blank on rows not used, so every term is a number).
+    """
+    zz = f"({z}+{res})"
+    odd = f"AND({p}=INT({p}),MOD({p},2)=1)"
+    pos = (f"IF({odd},SUMPRODUCT({mask},SIGN{zz}*ABS{zz}^(1/{p})),"
+           f"SUMPRODUCT({mask},(({zz}+ABS{zz})/2)^(1/{p})))/{n}-{s}")
+    neg = (f"IF(SUMPRODUCT({mask}*({zz}>=0))>0,\"unbounded\","
+           f"SUMPRODUCT({mask},(-{zz})^(1/{p}))/{n}-{s})")
+    return f"IF({p}=0,EXP({z})*{factor}-{s},IF({p}>0,{pos},{neg}))"
+
+
+def _abs(coord: str) -> str:
+    m = re.fullmatch(r"([A-Z]+)([0-9]+)", coord)
+    return f"${m.group(1)}${m.group(2)}"
+
+
+def _block(col: str, first: int, last: int) -> str:
+    return f"${col}${first}:${col}${last}"
+
+
+def _data_formulas(r: int) -> dict:
+    """Formulas of the working columns of data row ``r`` (they refer only to their own row and the line cells)."""
+    C = {k: _abs(v) for k, v in CELL.items()}
+    D = {k: f"{c}{r}" for k, c in DATA_COLUMNS.items()}
+    used = f"ISNUMBER({D['x_used']})"
+    y_re = _reexpress(D["y"] + "+" + C["y_start"], C["y_power"])
+    x_re = _reexpress(D["x"] + "+" + C["x_start"], C["x_power"])
+    a, b = C["intercept"], C["slope"]
+    return {
+        "x_used": f'=IF(AND(ISNUMBER({D["y"]}),ISNUMBER({D["x"]})),{D["x"]},"")',
+        "y_re": f'=IF({used},{y_re},"")',
+        "x_re": f'=IF({used},{x_re},"")',
+        "line": f'=IF({used},{a}+{b}*{D["x_re"]},"")',
+        "residual": f'=IF({used},{D["y_re"]}-{D["line"]},0)',
+    }
+
+
+def _new_formulas(r: int, first: int, last: int) -> dict:
+    """Formulas of new-x row ``r``; the statistics look at data rows ``first`` to ``last``."""
+    C = {k: _abs(v) for k, v in CELL.items()}
+    N = {k: f"{c}{r}" for k, c in NEW_COLUMNS.items()}
+    nx, xr, z = N["new_x"], N["x_re"], N["fitted"]
+    yp, ys = C["y_power"], C["y_start"]
+    n, s, t, xm, sxx = C["n"], C["resid_sd"], C["t"], C["x_mean"], C["sxx"]
+    mask = f"--ISNUMBER({_block(DATA_COLUMNS['x_used'], first, last)})"
+    res = _block(DATA_COLUMNS["residual"], first, last)
+    se_line = f"{s}*SQRT(1/{n}+({xr}-{xm})^2/{sxx})"
+    se_new = f"{s}*SQRT(1+1/{n}+({xr}-{xm})^2/{sxx})"
+    x_re = _reexpress(nx + "+" + C["x_start"], C["x_power"])
+    a, b, smear, xmin, xmax = C["intercept"], C["slope"], C["smear"], C["x_min"], C["x_max"]
+
+    def back(key):
+        zz = N[key]
+        return f'=IF(ISNUMBER({zz}),{_invert(zz, yp, ys)},"")'
+
+    return {
+        "x_re": f'=IF({nx}="","",IF(ISNUMBER({nx}),IFERROR({x_re},"cannot re-express"),"not a number"))',
+        "fitted": f'=IF(ISNUMBER({xr}),{a}+{b}*{xr},"")',
+        "line_low_re": f'=IF(ISNUMBER({z}),{z}-{t}*{se_line},"")',
+        "line_high_re": f'=IF(ISNUMBER({z}),{z}+{t}*{se_line},"")',
+        "low_re": f'=IF(ISNUMBER({z}),{z}-{t}*{se_new},"")',
+        "high_re": f'=IF(ISNUMBER({z}),{z}+{t}*{se_new},"")',
+        "median": back("fitted"),
+        "mean": f'=IF(ISNUMBER({z}),{_smeared(z, yp, ys, mask, res, n, smear)},"")',
+        # the inverse is increasing, so the lower re-expressed end gives the lower end in original units
+        "line_low": back("line_low_re"),
+        "line_high": back("line_high_re"),
+        "low": back("low_re"),
+        "high": back("high_re"),
+        "outside": f'=IF(ISNUMBER({nx}),IF(OR({nx}<{xmin},{nx}>{xmax}),"yes","no"),"")',
+        "note": (f'=IF({nx}="","",IF(NOT(ISNUMBER({nx})),"x is not a number",'
+                 f'IF(NOT(ISNUMBER({xr})),"x cannot be re-expressed at this power",'
+                 f'IF({N["outside"]}="yes","outside the observed x range: extrapolation",'
+                 f'IF(COUNTIF({N["median"]}:{N["high"]},"unbounded")>0,"no upper bound at this y power","")))))'),
+    }
+
+
+def _summary_formulas(first: int, last: int) -> dict:
+    C = {k: _abs(v) for k, v in CELL.items()}
+    yre, xre = _block(DATA_COLUMNS["y_re"], first, last), _block(DATA_COLUMNS["x_re"], first, last)
+    xu, res = _block(DATA_COLUMNS["x_used"], first, last), _block(DATA_COLUMNS["residual"], first, last)
+    bad = f"SUMPRODUCT(--ISERROR({yre}))+SUMPRODUCT(--ISERROR({xre}))"
+    return {
+        "slope": f"=SLOPE({yre},{xre})",
+        "intercept": f"=INTERCEPT({yre},{xre})",
+        "n": f"=COUNT({xu})",
+        "resid_sd": f"=STEYX({yre},{xre})",
+        "r2": f"=RSQ({yre},{xre})",
+        "x_mean": f"=AVERAGE({xre})",
+        "sxx": f"=DEVSQ({xre})",
+        "t": f"=TINV(1-{C['level']},{C['n']}-2)",
+        "smear": (f'=IF({C["y_power"]}=0,SUMPRODUCT(--ISNUMBER({xu}),EXP({res}))/{C["n"]},'
+                  f'"not used")'),
+        "x_min": f"=MIN({xu})",
+        "x_max": f"=MAX({xu})",
+        "check": (f'=IF({bad}>0,({bad})&" value(s) cannot be re-expressed at these powers: add a start or '
+                  f'choose another power",IF({C["n"]}<3,"need at least 3 rows where both y and x are numbers",'
+                  f'IF({C["sxx"]}=0,"x does not vary, so no line can be fitted","ok")))'),
+    }
+
+
+# ----------------------------------------------------------------------------- inputs
+def _column(values, name: str) -> list:
+    """Raw values of one column, in order (text kept as text)."""
+    if values is None:
+        return []
+    if isinstance(values, pd.DataFrame):
+        if values.shape[1] != 1:
+            raise UnbendError(f"the portable sheet takes one {name} column; got {values.shape[1]} columns. "
+                              "Fit several x columns with the add-in functions instead.")
+        values = values.iloc[:, 0]
+    if isinstance(values, (str, bytes)) or np.isscalar(values):
+        return [values]
+    arr = np.asarray(values, dtype=object)
+    if arr.ndim == 2:
+        if arr.shape[1] == 1:
+            arr = arr[:, 0]
+        elif arr.shape[0] == 1:
+            arr = arr[0, :]
+        else:
+            raise UnbendError(f"the portable sheet takes one {name} column; got {arr.shape[1]} columns. "
+                              "Fit several x columns with the add-in functions instead.")
+    elif arr.ndim > 2:
+        raise UnbendError(f"{name} must be one column of values; got shape {arr.shape}.")
+    return list(arr.ravel())
+
+
+def _sheet_title(title: str) -> str:
+    t = _SHEET_BAD.sub(" ", _clean(str(title))).strip().strip("'").strip()
+    return (t or "Portable prediction")[:31]
+
+
+def _label_name(name, default: str) -> str:
+    s = re.sub(r"\s+", " ", _clean(str(name))).strip()[:60]
+    return s or default
+
+
+def _unique_table_name(wb, stem: str) -> str:
+    taken = {t.lower() for ws in wb.worksheets for t in ws.tables.keys()}
+    k = 1
+    while f"{stem}{k}".lower() in taken:
+        k += 1
+    return f"{stem}{k}"
+
+
+# ----------------------------------------------------------------------------- the sheet
+def add_portable_sheet(workbook, y, x, new_x=(), *, y_power=1.0, x_power=1.0, y_start=0.0, x_start=0.0,
+                       level=0.95, title: str = "Portable prediction", y_name: str = "y", x_name: str = "x",
+                       invented_data: bool = False, spare_rows: int = 20, spare_new_rows: int = 10,
+                       capacity: int = 5000):
+    """Add a sheet holding the data, the fitted line and predictions, all as built-in spreadsheet formulas.
+
+    Parameters
+    ----------
+    workbook : openpyxl.Workbook
+        The workbook to add the sheet to (changed in place).
+    y, x : array_like
+        One column each, same length. Values that are not numbers are written
+        as they are (text stays text) and the row is skipped by the formulas,
+        as the engine skips it. More than one x column is refused.
+    new_x : array_like, optional
+        x values to predict at, one per row of the predictions table.
+    y_power, x_power : float
+        Ladder powers (0 = log); written to cells a colleague can change.
+    y_start, x_start : float
+        Added before re-expressing; also cells a colleague can change.
+    level : float
+        Level of both intervals (0.95 for 95%).
+    title : str
+        Sheet heading; the tab name is the same, shortened to 31 characters.
+    y_name, x_name : str
+        What y and x measure, shown in the headings.
+    invented_data : bool
+        Say on the sheet that the data are invented (for demonstration sheets).
+    spare_rows, spare_new_rows : int
+        Empty rows with formulas ready at the bottom of the data table and of
+        the predictions table.
+    capacity : int
+        How many rows from the first data row the statistics look at. Data
+        below that are ignored (the sheet says where the block ends).
+
+    Returns
+    -------
+    openpyxl.worksheet.worksheet.Worksheet
+
+    Raises
+    ------
+    UnbendError
+        For more than one x column, too few usable rows, values that cannot be
+        re-expressed at the chosen powers (the message proposes a start), or
+        bad settings. The data are fitted once by the engine first, so the
+        sheet always opens on a line that can be fitted.
+
+    Notes
+    -----
+    The line is the ordinary least-squares line of re-expressed y on
+    re-expressed x; its intervals use ``s * sqrt(1/n + (x' - mean x')^2 / Sxx)``
+    (plus 1 under the root for a new observation) with Student's t on n - 2
+    degrees of freedom (common practice). The average y is Duan's (1983)
+    smearing estimate, written as one SUMPRODUCT over the residual column.
+
+    Examples
+    --------
+    >>> from openpyxl import Workbook
+    >>> from unbend.udfs.portable import add_portable_sheet
+    >>> wb = Workbook()
+    >>> ws = add_portable_sheet(wb, [2.0, 3.1, 4.4, 6.2, 8.9], [1, 2, 3, 4, 5], [2.5, 6],
+    ...                         y_power=0, invented_data=True)
+    >>> ws["B17"].value
+    '=SLOPE($D$56:$D$5055,$E$56:$E$5055)'
+    """
+    yp = check_power(y_power, "y power")
+    xp = check_power(x_power, "x power")
+    lv = check_level(level)
+    ys_, xs_ = _start(y_start, "y start"), _start(x_start, "x start")
+    yv = [_data_value(v) for v in _column(y, "y")]
+    xv = [_data_value(v) for v in _column(x, "x")]
+    nv = [_data_value(v) for v in _column(new_x, "new x")]
+    if len(yv) != len(xv):
+        raise UnbendError(f"y has {len(yv)} rows but x has {len(xv)}; give columns of the same length.")
+    for nm, k, lo in (("spare_rows", spare_rows, 0), ("spare_new_rows", spare_new_rows, 0), ("capacity", capacity, 3)):
+        if not isinstance(k, numbers.Integral) or isinstance(k, bool) or k < lo:
+            raise UnbendError(f"{nm} must be a whole number of at least {lo}; got {k!r}.")
+    if len(yv) + spare_rows > capacity:
+        raise UnbendError(f"{len(yv)} data rows and {spare_rows} spare rows do not fit in capacity={capacity}; "
+                          "raise capacity.")
+    if len(nv) + spare_new_rows == 0:
+        raise UnbendError("give at least one new x or one spare row for new x values.")
+    # the engine fits the same numbers first: clear errors now, and a sheet that opens on a valid line
+    f = unbend.fit([_engine_number(v) for v in yv], [_engine_number(v) for v in xv], y_power=yp, x_power=xp,
+                   y_start=ys_, x_start=xs_, level=lv)
+    tab = f.residuals
+    fy, fyre, fxre = _digits(_typical(tab["y"])), _digits(_typical(tab["y_re"])), _digits(_typical(tab["x_re"]))
+    fres = _digits(f.resid_sd)
+    fx = _digits(_typical(tab["x"]))
+    hide0 = f"{fres};-{fres};;@" if fres != "General" else "General"  # rows not used show blank, not 0
+    data_fmt = {"y": fy, "x": fx, "x_used": fx, "y_re": fyre, "x_re": fxre, "line": fyre, "residual": hide0}
+    new_fmt = {"new_x": fx, "median": fy, "mean": fy, "line_low": fy, "line_high": fy, "low": fy, "high": fy,
+               "x_re": fxre, "fitted": fyre, "line_low_re": fyre, "line_high_re": fyre, "low_re": fyre, "high_re": fyre}
+    sum_fmt = {"slope": _digits(abs(float(f.coef[1]))), "intercept": fyre, "n": "0", "resid_sd": fres,
+               "r2": "0.0000", "x_mean": fxre, "sxx": _digits(float(np.sum((tab["x_re"] - tab["x_re"].mean()) ** 2))),
+               "t": "0.0000", "smear": "0.000000", "x_min": fx, "x_max": fx}
+
+    ws = workbook.create_sheet(_sheet_title(title))
+    yname, xname = _label_name(y_name, "y"), _label_name(x_name, "x")
+    m_rows = len(nv) + spare_new_rows
+    n_rows = len(yv) + spare_rows
+    data_header = PRED_HEADER + m_rows + 3
+    first = data_header + 1
+    last = first + capacity - 1
+
+    # heading, what the sheet is, cautions
+    _text(ws, "A1", title, font=_TITLE_FONT)
+    _wide(ws, 2, "A straight line fitted after re-expressing y and x by powers, with predictions taken back to the "
+                 "original units. Every number is a spreadsheet formula: change a yellow cell, the data or a new "
+                 "x, and everything recalculates. No add-in is needed.")
+    _wide(ws, 3, "Caution: " + unbend.CAUTION, font=_CAUTION_FONT)
+    if invented_data:
+        _wide(ws, 4, "The data in this sheet are invented for illustration; they describe no real measurements.",
+              font=_NOTE_FONT)
+    _wide(ws, 5, f"To add data, type y and x in the empty rows at the bottom of the data table (row {first + len(yv)} "
+                 f"onwards; their formulas are ready). For more rows, copy the last table row down. Rows that are "
+                 f"blank, or have text in y or x, are skipped. The statistics look at rows {first} to {last}.",
+          font=_NOTE_FONT)
+
+    # settings
+    _text(ws, "A7", "Settings you can change (yellow cells)", font=_SECTION_FONT)
+    settings = [
+        ("y_power", "y power", yp, "1 = raw, 0.5 = square root, 0 = log, -0.5 = reciprocal root, "
+                                   "-1 = reciprocal, 2 = square"),
+        ("y_start", "y start", ys_, "added to every y before re-expressing; use it when y has zeros or negatives"),
+        ("x_power", "x power", xp, "the same choices, for x"),
+        ("x_start", "x start", xs_, "added to every x before re-expressing"),
+        ("level", "interval level", lv, "0.95 gives 95% intervals"),
+    ]
+    for key, label, value, hint in settings:
+        coord = CELL[key]
+        r = int(coord[1:])
+        _text(ws, f"A{r}", label, font=_BOLD)
+        c = ws[coord]
+        c.value = float(value)
+        c.fill = _INPUT_FILL
+        c.border = _BOX
+        _text(ws, f"C{r}", hint, font=_NOTE_FONT)
+    _text(ws, "A13", "y measures", font=_BOLD)
+    _text(ws, CELL["y_name"], yname)
+    _text(ws, "A14", "x measures", font=_BOLD)
+    _text(ws, CELL["x_name"], xname)
+    dv_pow = DataValidation(type="decimal", operator="between", formula1="-100", formula2="100", allow_blank=False,
+                            showErrorMessage=True, errorTitle="Power",
+                            error="A power is a number between -100 and 100 (0 means log).")
+    dv_pow.add(CELL["y_power"])
+    dv_pow.add(CELL["x_power"])
+    dv_lv = DataValidation(type="decimal", operator="between", formula1="0.0001", formula2="0.9999",
+                           allow_blank=False, showErrorMessage=True, errorTitle="Level",
+                           error="The level is a number between 0 and 1, such as 0.95.")
+    dv_lv.add(CELL["level"])
+    ws.add_data_validation(dv_pow)
+    ws.add_data_validation(dv_lv)
+
+    # the line
+    _text(ws, "A16", "The line, on the re-expressed scale:  re-expressed y = intercept + slope \u00d7 re-expressed x",
+          font=_SECTION_FONT)
+    summary = [
+        ("slope", "slope", "change in re-expressed y for each 1 more of re-expressed x"),
+        ("intercept", "intercept", "re-expressed y where re-expressed x is 0"),
+        ("n", "rows used", "rows where both y and x are numbers"),
+        ("resid_sd", "residual spread (SD)", "typical distance of the points from the line (re-expressed scale)"),
+        ("r2", "R\u00b2 (re-expressed scale)", "share of the variation in re-expressed y that the line follows"),
+        ("x_mean", "average re-expressed x", "used by the intervals"),
+        ("sxx", "sum of squares of re-expressed x", "squared distances from their average, added up; used by "
+                                                    "the intervals"),
+        ("t", "t multiplier", "Student's t for the chosen level, with (rows used - 2) degrees of freedom"),
+        ("smear", "smearing factor (log only)", "average of EXP(residual): the log case's correction for the mean"),
+        ("x_min", "smallest x used", "a new x below this is extrapolation"),
+        ("x_max", "largest x used", "a new x above this is extrapolation"),
+        ("check", "check", "'ok', or what stops the line from being fitted"),
+    ]
+    sf = _summary_formulas(first, last)
+    for key, label, hint in summary:
+        coord = CELL[key]
+        r = int(coord[1:])
+        _text(ws, f"A{r}", label, font=_BOLD)
+        _formula(ws, coord, sf[key], fill=_RESULT_FILL, number_format=sum_fmt.get(key))
+        _text(ws, f"C{r}", hint, font=_NOTE_FONT)
+
+    # how to read the predictions
+    _text(ws, "A30", "How to read the predictions", font=_SECTION_FONT)
+    reading = [
+        "typical y: the line taken back to original units; about half of new y values are expected below it "
+        "(a median).",
+        "average y: the expected mean in original units (Duan's smearing over the residuals). It differs from the "
+        "typical y because taking values back from the re-expressed scale bends them.",
+        "typical y: low / high: the interval for the line, that is, for the typical y at that x.",
+        "one new y: low / high: the interval for a single new measurement at that x (always wider).",
+        "Both intervals are found on the re-expressed scale and taken back end by end. 'unbounded' means a "
+        "reciprocal-type scale has no finite upper end there.",
+        "outside the data's x range? 'yes' means extrapolation: the line is being trusted where there are no data.",
+        "Columns J to O show the same quantities on the re-expressed scale. Check the residual column (plot it "
+        "against x) before relying on any of this.",
+    ]
+    for i, line in enumerate(reading):
+        _wide(ws, 31 + i, "\u2022 " + line)
+
+    # predictions table
+    cap = (f'="Predictions at new x ("&ROUND({_abs(CELL["level"])}*100,4)&"% intervals): '
+           f'type new x values in column A"')
+    _formula(ws, f"A{PRED_HEADER - 1}", cap, font=_SECTION_FONT)
+    for key, col in NEW_COLUMNS.items():
+        _text(ws, f"{col}{PRED_HEADER}", _NEW_HEAD[key], font=_BOLD, wrap=True)
+    for i in range(m_rows):
+        r = PRED_HEADER + 1 + i
+        if i < len(nv):
+            _put_data(ws, f"{NEW_COLUMNS['new_x']}{r}", nv[i])
+        ws[f"{NEW_COLUMNS['new_x']}{r}"].number_format = fx
+        for key, text in _new_formulas(r, first, last).items():
+            c = _formula(ws, f"{NEW_COLUMNS[key]}{r}", text, number_format=new_fmt.get(key))
+            if key in _RIGHT:
+                c.alignment = Alignment(horizontal="right")
+    pred_last = PRED_HEADER + m_rows
+    tnew = Table(displayName=_unique_table_name(workbook, "UnbendNewX"),
+                 ref=f"A{PRED_HEADER}:{NEW_COLUMNS['high_re']}{pred_last}")
+    tnew.tableStyleInfo = TableStyleInfo(name="TableStyleLight11", showRowStripes=True)
+    ws.add_table(tnew)
+
+    # data table
+    _text(ws, f"A{data_header - 1}", DATA_CAPTION + " (blank rows are skipped; columns C to G are formulas)",
+          font=_SECTION_FONT)
+    head = {"y": "y" if yname == "y" else f"y ({yname})", "x": "x" if xname == "x" else f"x ({xname})"}
+    head.update(_DATA_HEAD)
+    for key, col in DATA_COLUMNS.items():
+        _text(ws, f"{col}{data_header}", head[key], font=_BOLD, wrap=True)
+    for i in range(n_rows):
+        r = first + i
+        if i < len(yv):
+            _put_data(ws, f"{DATA_COLUMNS['y']}{r}", yv[i])
+            _put_data(ws, f"{DATA_COLUMNS['x']}{r}", xv[i])
+        ws[f"{DATA_COLUMNS['y']}{r}"].number_format = fy
+        ws[f"{DATA_COLUMNS['x']}{r}"].number_format = fx
+        for key, text in _data_formulas(r).items():
+            _formula(ws, f"{DATA_COLUMNS[key]}{r}", text, number_format=data_fmt.get(key))
+    data_last = first + n_rows - 1
+    tdata = Table(displayName=_unique_table_name(workbook, "UnbendData"),
+                  ref=f"A{data_header}:{DATA_COLUMNS['residual']}{data_last}")
+    tdata.tableStyleInfo = TableStyleInfo(name="TableStyleLight9", showRowStripes=True)
+    ws.add_table(tdata)
+
+    _layout(ws, data_header, last)
+    return ws
+
+
+def _wide(ws, row: int, text: str, *, font=None) -> None:
+    """A line of text across the printed width (columns A to I), wrapped, with room for its lines."""
+    _text(ws, f"A{row}", text, font=font, wrap=True)
+    ws.merge_cells(f"A{row}:I{row}")
+    ws.row_dimensions[row].height = 15 * max(1, math.ceil(len(text) / 185))
+
+
+def _start(v, name: str) -> float:
+    try:
+        s = float(v)
+    except (TypeError, ValueError):
+        raise UnbendError(f"{name} must be a number; got {v!r}.") from None
+    if not math.isfinite(s):
+        raise UnbendError(f"{name} must be a finite number; got {v!r}.")
+    return s
+
+
+def _layout(ws, data_header: int, last: int) -> None:
+    widths = {"A": 30, "B": 14, "C": 14, "D": 14, "E": 14, "F": 14, "G": 14, "H": 12, "I": 44,
+              "J": 14, "K": 14, "L": 15, "M": 15, "N": 15, "O": 15}
+    for col, w in widths.items():
+        ws.column_dimensions[col].width = w
+    ws.row_dimensions[PRED_HEADER].height = 46
+    ws.row_dimensions[data_header].height = 46
+    ws.page_setup.orientation = "landscape"
+    ws.page_setup.fitToWidth = 1
+    ws.page_setup.fitToHeight = 0
+    ws.sheet_properties.pageSetUpPr.fitToPage = True
+    ws.print_area = f"A1:I{last}"  # the whole data block, so added rows print too; J to O are working columns
+
+
+# ----------------------------------------------------------------------------- whole workbook
+def write_portable_workbook(path, y, x, new_x=(), **options) -> Path:
+    """Write a standalone .xlsx holding one portable sheet; see :func:`add_portable_sheet` for the options.
+
+    The file is written to a temporary file in the same folder and then moved
+    into place in one step, so a reader never sees half a file and an
+    existing file is untouched if anything fails.
+
+    Returns
+    -------
+    pathlib.Path
+        The path written.
+    """
+    path = Path(path)
+    if path.suffix.lower() != ".xlsx":
+        raise UnbendError(f"the portable workbook is an .xlsx file; got {path.name!r}.")
+    wb = Workbook()
+    default = wb.active
+    add_portable_sheet(wb, y, x, new_x, **options)
+    wb.remove(default)
+    wb.active = 0
+    folder = path.resolve().parent
+    folder.mkdir(parents=True, exist_ok=True)
+    fd, tmp = tempfile.mkstemp(prefix=".unbend-", suffix=".xlsx", dir=folder)
+    os.close(fd)
+    try:
+        wb.save(tmp)
+        os.replace(tmp, path)
+    except BaseException:
+        if os.path.exists(tmp):
+            os.unlink(tmp)
+        raise
+    return path
+
+
+# ----------------------------------------------------------------------------- growing and reading
+def _find_table(ws, stem: str):
+    for tbl in ws.tables.values():  # (TableList.items() gives ranges, not tables)
+        if tbl.displayName.startswith(stem):
+            return tbl
+    raise UnbendError(f"this sheet has no {stem} table; is it a portable sheet written by unbend?")
+
+
+def _capacity_last(ws) -> int:
+    m = re.search(r"\$D\$\d+:\$D\$(\d+)", str(ws[CELL["slope"]].value))
+    if m is None:
+        raise UnbendError("cannot read the data block of this portable sheet (the slope formula was changed).")
+    return int(m.group(1))
+
+
+def append_portable_rows(ws, y, x) -> int:
+    """Add data rows to a portable sheet: fill the empty table rows first, then extend the table below.
+
+    New rows get the same working formulas as the other data rows, and the
+    table's range grows to include them. Returns the last row of the table.
+
+    Raises
+    ------
+    UnbendError
+        For more than one x column, unequal lengths, or rows beyond the block
+        the statistics look at.
+    """
+    yv = [_data_value(v) for v in _column(y, "y")]
+    xv = [_data_value(v) for v in _column(x, "x")]
+    if len(yv) != len(xv):
+        raise UnbendError(f"y has {len(yv)} rows but x has {len(xv)}; give columns of the same length.")
+    tbl = _find_table(ws, "UnbendData")
+    last_col = DATA_COLUMNS["residual"]
+    m = re.fullmatch(r"\$?A\$?(\d+):\$?([A-Z]+)\$?(\d+)", tbl.ref)
+    if m is None or m.group(2) != last_col:
+        raise UnbendError(f"the data table range {tbl.ref} is not where a portable sheet keeps it.")
+    header, end = int(m.group(1)), int(m.group(3))
+    cap = _capacity_last(ws)
+    ycol, xcol = DATA_COLUMNS["y"], DATA_COLUMNS["x"]
+    free = [r for r in range(header + 1, end + 1)
+            if ws[f"{ycol}{r}"].value is None and ws[f"{xcol}{r}"].value is None]
+    k = 0
+    for r in free:
+        if k >= len(yv):
+            break
+        _put_data(ws, f"{ycol}{r}", yv[k])
+        _put_data(ws, f"{xcol}{r}", xv[k])
+        k += 1
+    r = end
+    while k < len(yv):
+        r += 1
+        if r > cap:
+            raise UnbendError(f"row {r} is below the block the statistics look at (rows {header + 1} to {cap}); "
+                              "write a new sheet with a larger capacity.")
+        _put_data(ws, f"{ycol}{r}", yv[k])
+        _put_data(ws, f"{xcol}{r}", xv[k])
+        for col in (ycol, xcol):
+            ws[f"{col}{r}"].number_format = ws[f"{col}{header + 1}"].number_format
+        for key, text in _data_formulas(r).items():
+            col = DATA_COLUMNS[key]
+            _formula(ws, f"{col}{r}", text, number_format=ws[f"{col}{header + 1}"].number_format)
+        k += 1
+    new_end = max(end, r)
+    tbl.ref = f"A{header}:{last_col}{new_end}"
+    if tbl.autoFilter is not None:
+        tbl.autoFilter.ref = tbl.ref
+    return new_end
+
+
+def read_portable(ws) -> tuple[dict, pd.DataFrame]:
+    """Read the line and the predictions from a recalculated portable sheet.
+
+    Parameters
+    ----------
+    ws : openpyxl worksheet
+        From a workbook loaded with ``data_only=True`` after a spreadsheet
+        program (or :func:`unbend.udfs.recalc.recalculate`) computed it.
+
+    Returns
+    -------
+    (dict, pandas.DataFrame)
+        The settings and line cells by name (see :data:`CELL`), and one row
+        per filled new x with the columns of :data:`NEW_COLUMNS`; empty
+        results read as "".
+    """
+    summary = {k: ws[c].value for k, c in CELL.items()}
+    rows = []
+    col = NEW_COLUMNS["new_x"]
+    r = PRED_HEADER + 1
+    while r <= ws.max_row:
+        v = ws[f"{col}{r}"].value
+        if isinstance(v, str) and v.startswith(DATA_CAPTION):
+            break
+        if v is not None and v != "":
+            rows.append({k: _blank(ws[f"{c}{r}"].value) for k, c in NEW_COLUMNS.items()})
+        r += 1
+    else:
+        raise UnbendError("this sheet has no data caption below the predictions; is it a portable sheet?")
+    return summary, pd.DataFrame(rows, columns=list(NEW_COLUMNS), dtype=object)
+
+
+def _blank(v):
+    """An empty result cell ("" from a formula, saved as an empty cell) reads back as ""."""
+    return "" if v is None else v
