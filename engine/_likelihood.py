@@ -140,7 +140,7 @@ class XPowerProfile:
 
 #: Above this many rows a subsample finds the neighbourhood first.
 SUBSAMPLE_ABOVE = 40_000
-SUBSAMPLE_SIZE = 20_000
+SUBSAMPLE_SIZE = 5_000
 
 
 class _NoShortcut(Exception):
@@ -168,20 +168,56 @@ def profile_max(profile, level: float, *, limit: float = 20.0):
     return maximise_with_interval(profile.loglik, level, limit=limit)
 
 
+def _parabolic_max(f, x0: float, d: float, tol: float = 1e-10, maxit: int = 40):
+    """Maximum of a smooth, locally concave f near x0 by successive parabolic interpolation."""
+    xs = [x0 - d, x0, x0 + d]
+    fs = [f(x) for x in xs]
+    for _ in range(12):  # walk until the middle point is the highest of three
+        if not all(np.isfinite(fs)):
+            raise _NoShortcut
+        if fs[1] >= fs[0] and fs[1] >= fs[2]:
+            break
+        if fs[2] > fs[1]:
+            xs, fs = [xs[1], xs[2], xs[2] + d], [fs[1], fs[2], f(xs[2] + d)]
+        else:
+            xs, fs = [xs[0] - d, xs[0], xs[1]], [f(xs[0] - d), fs[0], fs[1]]
+    else:
+        raise _NoShortcut
+    a, b, c = xs
+    fa, fb, fc = fs
+    for _ in range(maxit):
+        den = (b - a) * (fb - fc) - (b - c) * (fb - fa)
+        if den == 0:
+            break
+        v = b - 0.5 * ((b - a) ** 2 * (fb - fc) - (b - c) ** 2 * (fb - fa)) / den
+        if not (a < v < c) or abs(v - b) < 1e-3 * tol:
+            # fall back to a golden step into the larger side
+            v = b + 0.381966 * ((c - b) if (c - b) > (b - a) else (a - b))
+        fv = f(v)
+        if not np.isfinite(fv):
+            raise _NoShortcut
+        step = abs(v - b)
+        if v < b:
+            if fv >= fb:
+                c, fc, b, fb = b, fb, v, fv
+            else:
+                a, fa = v, fv
+        else:
+            if fv >= fb:
+                a, fa, b, fb = b, fb, v, fv
+            else:
+                c, fc = v, fv
+        if step < tol * max(1.0, abs(b)) or c - a < 4 * tol * max(1.0, abs(b)):
+            break
+    return float(b), float(fb)
+
+
 def _refine(f, level, est_s, lo_s, hi_s, shrink, limit):
     if not (np.isfinite(lo_s) and np.isfinite(hi_s)):
         raise _NoShortcut
     z = np.sqrt(stats.chi2.ppf(level, 1))
-    se_s = (hi_s - lo_s) / (2 * z)
-    a, b = est_s - 4 * se_s, est_s + 4 * se_s
-    fa, fm, fb = f(a), f(est_s), f(b)
-    if not (np.isfinite(fm) and fm >= fa and fm >= fb):
-        raise _NoShortcut
-    res = optimize.minimize_scalar(lambda p: -f(p), bounds=(a, b), method="bounded", options={"xatol": 1e-10})
-    est = float(res.x)
-    top = float(-res.fun)
-    if top < fm:
-        est, top = est_s, fm
+    se = (hi_s - lo_s) / (2 * z) * shrink  # expected standard error on the full data
+    est, top = _parabolic_max(f, est_s, max(se, 1e-6))
     target = top - stats.chi2.ppf(level, 1) / 2.0
 
     def g(p):
@@ -190,15 +226,15 @@ def _refine(f, level, est_s, lo_s, hi_s, shrink, limit):
 
     ends = []
     for direction, half in ((-1, (est_s - lo_s) * shrink), (+1, (hi_s - est_s) * shrink)):
-        inner, outer = est + direction * 0.8 * half, est + direction * 1.25 * half
+        inner, outer = est + direction * 0.97 * half, est + direction * 1.03 * half
         if g(inner) <= 0:
             inner = est
         tries = 0
         while g(outer) > 0:
             inner = outer
-            outer = est + direction * (abs(outer - est) * 1.6)
+            outer = est + direction * (abs(outer - est) * 1.3)
             tries += 1
-            if tries > 6 or abs(outer) > limit:
+            if tries > 10 or abs(outer) > limit:
                 raise _NoShortcut
         lo_, hi_ = sorted((inner, outer))
         ends.append(float(optimize.brentq(g, lo_, hi_, xtol=1e-12, rtol=4 * np.finfo(float).eps, maxiter=200)))
