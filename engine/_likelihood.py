@@ -55,8 +55,9 @@ class Design:
         return u - self.Q @ (self.Q.T @ u)
 
     def rss(self, u: np.ndarray) -> float:
-        r = self.residuals(u)
-        return float(r @ r)
+        with np.errstate(all="ignore"):  # overflow gives inf: that power is then simply not chosen
+            r = self.residuals(u)
+            return float(r @ r)
 
 
 def gaussian_loglik(rss: float, n: int) -> float:
@@ -138,6 +139,8 @@ class XPowerProfile:
         return gaussian_loglik(rss, self.n)
 
 
+#: Powers beyond +-this are not searched.
+SEARCH_LIMIT = 20.0
 #: Above this many rows a subsample finds the neighbourhood first.
 SUBSAMPLE_ABOVE = 40_000
 SUBSAMPLE_SIZE = 5_000

@@ -140,8 +140,8 @@ def usable_rows(y: np.ndarray, X: np.ndarray | None = None, *, need: int = MIN_R
         skipped.append((int(bad[10000]) + 1, f"and {len(bad) - 10000} further rows without numbers"))
     rows = Rows(used=ok, skipped=tuple(skipped))
     if rows.n_used < need:
-        both = f"both {y_name} and {x_name} are" if X is not None else f"{y_name} is"
-        raise UnbendError(f"need at least {need} rows where {both} numbers; found {rows.n_used}.")
+        both = f"both {y_name} and {x_name} are numbers" if X is not None else f"{y_name} is a number"
+        raise UnbendError(f"need at least {need} rows where {both}; found {rows.n_used}.")
     return rows
 
 

@@ -48,6 +48,14 @@ def _not_run(name: str) -> Check:
     return Check(name, float("nan"), float("nan"), None, 0.0)
 
 
+def make_check(name: str, statistic, pvalue, alpha: float, direction: float = 0.0) -> Check:
+    """A Check, or 'not run' when the statistic or p-value could not be computed (overflow, say)."""
+    statistic, pvalue = float(statistic), float(pvalue)
+    if not np.isfinite(pvalue) or np.isnan(statistic):
+        return _not_run(name)
+    return Check(name, statistic, pvalue, bool(pvalue >= alpha), float(direction) if np.isfinite(direction) else 0.0)
+
+
 def curvature_test(A: np.ndarray, y: np.ndarray, fitted: np.ndarray) -> Check:
     """Tukey's one-degree-of-freedom test for curvature.
 
@@ -92,7 +100,7 @@ def curvature_test(A: np.ndarray, y: np.ndarray, fitted: np.ndarray) -> Check:
     else:
         t = float(coef[-1] / se)
         pv = float(2 * stats.t.sf(abs(t), df))
-    return Check("Tukey one-degree-of-freedom", t, pv, bool(pv >= ALPHA), float(np.sign(coef[-1])))
+    return make_check("Tukey one-degree-of-freedom", t, pv, ALPHA, np.sign(coef[-1]))
 
 
 def pattern_bins(key: np.ndarray) -> np.ndarray:
@@ -140,7 +148,7 @@ def pattern_test(resid: np.ndarray, bins: np.ndarray) -> Check:
     h = 12.0 / (n * (n + 1.0)) * float(np.sum(rsum ** 2 / cnt)) - 3.0 * (n + 1.0)
     h = h / ties if ties > 0 else 0.0
     pv = float(stats.chi2.sf(h, cnt.size - 1))
-    return Check(name, float(h), pv, bool(pv >= PATTERN_ALPHA), 0.0)
+    return make_check(name, h, pv, PATTERN_ALPHA)
 
 
 def spread_test(Xt: np.ndarray, resid: np.ndarray, fitted: np.ndarray) -> Check:
@@ -173,7 +181,7 @@ def spread_test(Xt: np.ndarray, resid: np.ndarray, fitted: np.ndarray) -> Check:
     lm = n * r2
     pv = float(stats.chi2.sf(lm, k))
     c = np.corrcoef(np.abs(resid), fitted)[0, 1] if np.ptp(fitted) > 0 else 0.0
-    return Check("Breusch-Pagan (Koenker)", float(lm), pv, bool(pv >= ALPHA),
+    return make_check("Breusch-Pagan (Koenker)", lm, pv, ALPHA,
                  float(np.sign(c)) if np.isfinite(c) else 0.0)
 
 
@@ -194,7 +202,7 @@ def normality_test(resid: np.ndarray) -> Check:
     else:
         st, pv = stats.normaltest(resid)
         name = "D'Agostino-Pearson"
-    return Check(name, float(st), float(pv), bool(pv >= ALPHA / 5), 0.0)
+    return make_check(name, st, pv, ALPHA / 5)
 
 
 def _p(pv: float) -> str:

@@ -276,7 +276,12 @@ def fit(y, x, *, y_power=1.0, x_power=1.0, y_start=0.0, x_start=0.0, level=0.95,
     fitted = A @ bc
     resid = yt - fitted
     df = n - p
-    rss = float(resid @ resid)
+    with np.errstate(all="ignore"):
+        rss = float(resid @ resid)
+        tss_check = float(((yt - yt.mean()) ** 2).sum())
+    if not (np.isfinite(rss) and np.isfinite(tss_check)) or not np.all(np.isfinite(bc)):
+        raise UnbendError("the values are too large to fit at this power (the sums overflow); rescale the data or "
+                          "choose a power nearer 1.")
     s2 = rss / df
     s = np.sqrt(s2)
     Rinv = linalg.solve_triangular(R, np.eye(p))

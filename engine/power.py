@@ -86,8 +86,19 @@ def choose_rung(estimate: float, low: float, high: float, rungs=None, *, what: s
         r = min(inside, key=lambda r: (abs(r - estimate), -r))
         return r, "the ladder rung inside the interval that is nearest the estimate."
     r = min(rungs, key=lambda r: (abs(r - estimate), -r))
-    return r, (f"no rung lies inside the interval {low:.3g} to {high:.3g}; this is the nearest. "
+    return r, (f"no rung lies inside the interval ({interval_words(low, high)}); this is the nearest. "
                f"Consider the power {estimate:.3g} itself, or a start.")
+
+
+def interval_words(low: float, high: float) -> str:
+    """An interval in words, saying so when an end is open."""
+    if np.isfinite(low) and np.isfinite(high):
+        return f"{low:.3g} to {high:.3g}"
+    if np.isfinite(low):
+        return f"{low:.3g} and above, with no upper end"
+    if np.isfinite(high):
+        return f"{high:.3g} and below, with no lower end"
+    return "no end in either direction"
 
 
 def _cautions(n: int, low: float, high: float) -> str:
@@ -106,6 +117,9 @@ def _suggestion(est, lo, hi, *, level, what, method, n, skipped, loglik, rungs, 
     c = _cautions(n, lo, hi)
     if c:
         parts.append(c)
+    if abs(est) >= lik.SEARCH_LIMIT * 0.999:
+        parts.append(f"The likelihood keeps rising to the edge of the search (power {est:+.0f}): the data do not pin "
+                     "the power down; look for an outlier, or add a start or more rows.")
     if extra:
         parts.append(extra)
     return PowerSuggestion(estimate=float(est), low=float(lo), high=float(hi), rung=float(rung),

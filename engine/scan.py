@@ -7,7 +7,7 @@ import pandas as pd
 from scipy import stats
 
 from ._validation import UnbendError, as_matrix, as_vector, usable_rows
-from .diagnostics import ALPHA, Check, normality_test, pattern_bins, pattern_test
+from .diagnostics import ALPHA, Check, make_check, normality_test, pattern_bins, pattern_test
 from .express import LADDER, Reexpression, rung_label
 from .fitting import fit as _fit, gaussian_loglik_with_jacobian
 
@@ -87,10 +87,11 @@ def scan(y, x, *, y_start=0.0, x_start=0.0, rungs=None) -> pd.DataFrame:
     rows = usable_rows(yv, X, need=max(3, X.shape[1] + 2))
     yu, Xu = yv[rows.used], X[rows.used]
     rungs = tuple(float(r) for r in (rungs if rungs is not None else LADDER))
-    if Xu.shape[1] == 1:
-        out = _scan_one_x(yu, Xu[:, 0], rungs, y_start, x_start)
-    else:
-        out = _scan_general(yu, Xu, rungs, y_start, x_start)
+    with np.errstate(all="ignore"):  # overflow at extreme powers becomes "not possible", never a crash
+        if Xu.shape[1] == 1:
+            out = _scan_one_x(yu, Xu[:, 0], rungs, y_start, x_start)
+        else:
+            out = _scan_general(yu, Xu, rungs, y_start, x_start)
     t = pd.DataFrame(out)
     t["_ll"] = t["loglik"].where(np.isfinite(t["loglik"]), -np.inf)
     t = t.sort_values(by=["_ok", "_curv", "_ll"], ascending=[False, False, False], kind="mergesort")
@@ -174,48 +175,57 @@ def _scan_one_x(yu, xu, rungs, y_start, x_start):
                 out.append(_impossible(rec, "y overflows at this power"))
                 continue
             xt, q2, q3 = xi
-            b = float(q2 @ yc)
-            resid = yc - b * q2
-            rss = float(resid @ resid)
-            fitted = yt - resid
-            # Tukey's one degree of freedom: the squared column, orthogonal to the line
-            if q3 is None or n < 5:
-                curv = Check("Tukey one-degree-of-freedom", np.nan, np.nan, None, 0.0)
-            else:
-                c3 = float(q3 @ resid)
-                df3 = n - 3
-                rss3 = rss - c3 * c3
-                if rss3 <= 0:
-                    tv, pv = (np.inf if c3 else 0.0), (0.0 if c3 else 1.0)
-                else:
-                    tv = c3 / np.sqrt(rss3 / df3)
-                    pv = float(2 * stats.t.sf(abs(tv), df3))
-                curv = Check("Tukey one-degree-of-freedom", float(tv), pv, bool(pv >= ALPHA), float(np.sign(c3)))
-            pat = pattern_test(resid, bins)
-            # Breusch-Pagan, Koenker's form, one x column
-            if n < 4:
-                spr = Check("Breusch-Pagan (Koenker)", np.nan, np.nan, None, 0.0)
-            else:
-                e2 = resid * resid
-                d = e2 - e2.mean()
-                dd = float(d @ d)
-                if dd == 0:
-                    spr = Check("Breusch-Pagan (Koenker)", 0.0, 1.0, True, 0.0)
-                else:
-                    lm = n * float(q2 @ d) ** 2 / dd
-                    pv = float(stats.chi2.sf(lm, 1))
-                    cc = np.corrcoef(np.abs(resid), fitted)[0, 1] if np.ptp(fitted) > 0 else 0.0
-                    spr = Check("Breusch-Pagan (Koenker)", float(lm), pv, bool(pv >= ALPHA),
-                                float(np.sign(cc)) if np.isfinite(cc) else 0.0)
-            nor = normality_test(resid)
-            with np.errstate(invalid="ignore", over="ignore"):
-                back = ty.invert(fitted)
-                r2o = 1.0 - float(((yu - back) ** 2).sum()) / tss_orig if tss_orig > 0 else np.nan
-            r2 = 1.0 - rss / tss if tss > 0 else np.nan
-            ll = gaussian_loglik_with_jacobian(rss, n, jac)
-            out.append(_record(rec, loglik=ll, curvature=curv, pattern=pat, spread=spr, normality=nor,
-                               r2=r2, r2_original=r2o))
+            with np.errstate(all="ignore"):
+                b = float(q2 @ yc)
+                resid = yc - b * q2
+                rss = float(resid @ resid)
+            if not (np.isfinite(rss) and np.isfinite(tss)):
+                out.append(_impossible(rec, "values too large at this power; rescale the data"))
+                continue
+            _pair_checks(out, rec, n, ty, yu, yt, resid, rss, tss, tss_orig, jac, q2, q3, bins)
     return out
+
+
+def _pair_checks(out, rec, n, ty, yu, yt, resid, rss, tss, tss_orig, jac, q2, q3, bins):
+    """The checks of one pair of rungs (one x column), appended to ``out``."""
+    with np.errstate(all="ignore"):
+        fitted = yt - resid
+        # Tukey's one degree of freedom: the squared column, orthogonal to the line
+        if q3 is None or n < 5:
+            curv = Check("Tukey one-degree-of-freedom", np.nan, np.nan, None, 0.0)
+        else:
+            c3 = float(q3 @ resid)
+            df3 = n - 3
+            rss3 = rss - c3 * c3
+            if rss3 <= 0:
+                tv, pv = (np.inf if c3 else 0.0), (0.0 if c3 else 1.0)
+            else:
+                tv = c3 / np.sqrt(rss3 / df3)
+                pv = float(2 * stats.t.sf(abs(tv), df3))
+            curv = make_check("Tukey one-degree-of-freedom", tv, pv, ALPHA, np.sign(c3))
+        pat = pattern_test(resid, bins)
+        # Breusch-Pagan, Koenker's form, one x column
+        if n < 4:
+            spr = Check("Breusch-Pagan (Koenker)", np.nan, np.nan, None, 0.0)
+        else:
+            e2 = resid * resid
+            d = e2 - e2.mean()
+            dd = float(d @ d)
+            if dd == 0:
+                spr = Check("Breusch-Pagan (Koenker)", 0.0, 1.0, True, 0.0)
+            else:
+                lm = n * np.float64(q2 @ d) ** 2 / dd
+                pv = float(stats.chi2.sf(lm, 1))
+                cc = np.corrcoef(np.abs(resid), fitted)[0, 1] if np.ptp(fitted) > 0 else 0.0
+                spr = make_check("Breusch-Pagan (Koenker)", lm, pv, ALPHA, np.sign(cc) if np.isfinite(cc) else 0.0)
+        nor = normality_test(resid)
+        with np.errstate(invalid="ignore", over="ignore"):
+            back = ty.invert(fitted)
+            r2o = 1.0 - float(((yu - back) ** 2).sum()) / tss_orig if tss_orig > 0 else np.nan
+        r2 = 1.0 - rss / tss if tss > 0 else np.nan
+        ll = gaussian_loglik_with_jacobian(rss, n, jac)
+        out.append(_record(rec, loglik=ll, curvature=curv, pattern=pat, spread=spr, normality=nor,
+                           r2=r2, r2_original=r2o))
 
 
 def _scan_general(yu, Xu, rungs, y_start, x_start):

@@ -50,7 +50,7 @@ def invert_text(z: str, power: float, start: float, log10: bool = False) -> str:
         odd = p.is_integer() and int(p) % 2 == 1
         out = f"SIGN({z})*POWER(ABS({z}),{num(1 / p)})" if odd else f"POWER(MAX({z},0),{num(1 / p)})"
     else:
-        out = f"POWER(-({z}),{num(1 / power)})"
+        out = f"POWER(MAX(-({z}),0),{num(1 / power)})"  # past the reachable end: #DIV/0!, like the engine's inf
     return out if start == 0 else f"{out}-{num(start)}"
 
 

