@@ -191,18 +191,25 @@ def predict(fit, new_x, level: float = 0.95) -> pd.DataFrame:
     line_lo, line_hi = ends(se_line)
     lo, hi = ends(se_new)
     outside = ((X < fit.x_min) | (X > fit.x_max)).any(axis=1) & np.isfinite(X).all(axis=1)
+    median = inv(eta)
     notes = []
     for i in range(m):
         if not np.isfinite(X[i]).all():
             notes.append("x is not a number")
-        elif not ok[i]:
+            continue
+        if not ok[i]:
             notes.append("x cannot be re-expressed at this power")
-        elif outside[i]:
-            notes.append("outside the observed x range: extrapolation")
-        else:
-            notes.append("")
+            continue
+        parts = []
+        if outside[i]:
+            parts.append("outside the observed x range: extrapolation")
+        if not np.isfinite(median[i]):
+            parts.append("no finite value: the line is past the end this y power can reach")
+        elif not np.isfinite(hi[i]):
+            parts.append("the interval has no upper end at this y power")
+        notes.append("; ".join(parts))
     cols = {nm: X[:, j] for j, nm in enumerate(fit.x_names)}
-    cols.update(fitted=eta, median=inv(eta), mean=smeared_mean(fit, eta), mean_normal=normal_theory_mean(fit, eta),
+    cols.update(fitted=eta, median=median, mean=smeared_mean(fit, eta), mean_normal=normal_theory_mean(fit, eta),
                 line_low=line_lo, line_high=line_hi, low=lo, high=hi, outside_range=outside, note=notes)
     return pd.DataFrame(cols)
 

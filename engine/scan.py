@@ -277,7 +277,8 @@ def best_pair(y, x, *, y_start=0.0, x_start=0.0, rungs=None, y_power=None, x_pow
     if x_power is not None:
         ok &= t["x_power"] == float(x_power)
     if not ok.any():
-        raise UnbendError("no pair of rungs can be fitted to these data; add a start for values of 0 or below.")
+        why = t["verdict"].iloc[0].replace("not possible: ", "") if len(t) else ""
+        raise UnbendError(f"no pair of rungs can be fitted to these data ({why.rstrip('.')}).")
     row = t[ok].iloc[0]
     return float(row["y_power"]), float(row["x_power"])
 

@@ -289,6 +289,9 @@ def _new_formulas(r: int, first: int, last: int) -> dict:
         zz = N[key]
         return f'=IF(ISNUMBER({zz}),{_invert(zz, yp, ys)},"")'
 
+    o_txt = f'IF({N["outside"]}="yes","outside the observed x range: extrapolation","")'
+    b_txt = (f'IF({N["median"]}="unbounded","no finite value: the line is past the end this y power can reach",'
+             f'IF({N["high"]}="unbounded","the interval has no upper end at this y power",""))')
     return {
         "x_re": f'=IF({nx}="","",IF(ISNUMBER({nx}),IFERROR({x_re},"cannot re-express"),"not a number"))',
         "fitted": f'=IF(ISNUMBER({xr}),{a}+{b}*{xr},"")',
@@ -306,8 +309,7 @@ def _new_formulas(r: int, first: int, last: int) -> dict:
         "outside": f'=IF(ISNUMBER({nx}),IF(OR({nx}<{xmin},{nx}>{xmax}),"yes","no"),"")',
         "note": (f'=IF({nx}="","",IF(NOT(ISNUMBER({nx})),"x is not a number",'
                  f'IF(NOT(ISNUMBER({xr})),"x cannot be re-expressed at this power",'
-                 f'IF({N["outside"]}="yes","outside the observed x range: extrapolation",'
-                 f'IF(COUNTIF({N["median"]}:{N["high"]},"unbounded")>0,"no upper bound at this y power","")))))'),
+                 f'IF(AND({o_txt}<>"",{b_txt}<>""),{o_txt}&"; "&{b_txt},{o_txt}&{b_txt}))))'),
     }
 
 
