@@ -11,7 +11,7 @@ from scipy import stats
 
 from ._validation import FEW_ROWS, as_matrix, check_level
 
-__all__ = ["predict", "smeared_mean", "smearing_terms", "normal_theory_mean", "slope_reading", "explain"]
+__all__ = ["predict", "prediction_columns", "smeared_mean", "smearing_terms", "normal_theory_mean", "slope_reading", "explain"]
 
 _CHUNK = 2_000_000  # residual x new-x products per block in the smearing sum
 
@@ -115,6 +115,13 @@ def _t_quantile(level: float, df: int) -> float:
 
 
 def predict(fit, new_x, level: float = 0.95) -> pd.DataFrame:
+    return pd.DataFrame(prediction_columns(fit, new_x, level))
+
+
+predict.__doc__ = None  # replaced below with the full description
+
+
+def prediction_columns(fit, new_x, level: float = 0.95) -> dict:
     """Predict y in original units at new x.
 
     Parameters
@@ -207,11 +214,18 @@ def predict(fit, new_x, level: float = 0.95) -> pd.DataFrame:
             parts.append("no finite value: the line is past the end this y power can reach")
         elif not np.isfinite(hi[i]):
             parts.append("the interval has no upper end at this y power")
+        if fit.n < FEW_ROWS:
+            parts.append(f"only {fit.n} rows were used: treat with caution")
         notes.append("; ".join(parts))
     cols = {nm: X[:, j] for j, nm in enumerate(fit.x_names)}
     cols.update(fitted=eta, median=median, mean=smeared_mean(fit, eta), mean_normal=normal_theory_mean(fit, eta),
                 line_low=line_lo, line_high=line_hi, low=lo, high=hi, outside_range=outside, note=notes)
-    return pd.DataFrame(cols)
+    return cols
+
+
+predict.__doc__ = prediction_columns.__doc__
+prediction_columns.__doc__ = ("The columns of :func:`predict` as a dict of arrays (no DataFrame), for callers "
+                              "that need speed.")
 
 
 def _pct(mult: float) -> str:

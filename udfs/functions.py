@@ -17,6 +17,7 @@ import xlwings as xw
 import unbend
 from unbend import UnbendError
 from unbend.fitting import CAUTION
+from unbend.predicting import prediction_columns
 
 from . import cells
 from .formula import model_formula
@@ -181,16 +182,16 @@ def UNBEND_PREDICT(y, x, new_x, y_power=None, x_power=None, what=None, level=Non
         nx = nx.T
     if nx.shape[0] == 0:
         raise UnbendError("new_x is empty; give the x value(s) to predict at.")
-    p = f.predict(nx, level=lv)
+    p = prediction_columns(f, nx, level=lv)
     if w is not None:
-        vals = p[w].to_numpy()
+        vals = np.asarray(p[w])
         return cells.scalar(vals[0]) if vals.size == 1 else cells.column(vals)
     xcols = list(f.x_names) if k > 1 else ["new x"]
     words = prediction_headers(lv)
     header = xcols + [words[c] for c in _PRED_COLS] + ["y power", "x power", "rows used", "rows skipped"]
-    m = len(p)
-    columns = [p[c].to_numpy() for c in f.x_names] + [p[c].to_numpy() for c in _PRED_COLS[:-2]]
-    columns += [np.where(p["outside_range"].to_numpy(), "yes", "no"), p["note"].to_numpy()]
+    m = len(p["median"])
+    columns = [np.asarray(p[c]) for c in f.x_names] + [np.asarray(p[c]) for c in _PRED_COLS[:-2]]
+    columns += [np.where(p["outside_range"], "yes", "no"), np.asarray(p["note"], dtype=object)]
     columns += [np.full(m, f.y_power), np.full(m, f.x_power), np.full(m, f.n), np.full(m, f.n_skipped)]
     return cells.table(header, list(zip(*(c.tolist() for c in columns))))
 
