@@ -17,6 +17,12 @@ _LOG2PI1 = np.log(2.0 * np.pi) + 1.0
 _TINY = 1e-300
 
 
+def dot(a: np.ndarray, b: np.ndarray) -> float:
+    """Dot product of two vectors without BLAS threads (they cost more than they save at this size,
+    and thrash on a busy two-core machine)."""
+    return float(np.einsum("i,i->", a, b))
+
+
 def centred_power(d: np.ndarray, p: float) -> np.ndarray:
     """``expm1(p * d) / p`` with its limit ``d`` at p = 0 (d: centred logs)."""
     if abs(p) < 1e-12:
@@ -30,6 +36,7 @@ class Design:
 
     def __init__(self, X: np.ndarray | None):
         self.X = X
+        self.q = None
         if X is None:
             self.Q = None
             return
@@ -39,6 +46,11 @@ class Design:
         sc = X.std(axis=0)
         if np.any(sc == 0):
             raise UnbendError("x does not vary (every x value is the same); a line needs at least two different x values.")
+        if X.shape[1] == 1:  # one column: the basis is the centred column, scaled to length 1
+            c = (X[:, 0] - mu[0]) / sc[0]
+            self.q = c / np.sqrt(dot(c, c))
+            self.Q = None
+            return
         A = np.column_stack([np.ones(X.shape[0]), (X - mu) / sc])
         Q, R = np.linalg.qr(A)
         d = np.abs(np.diag(R))
@@ -51,13 +63,26 @@ class Design:
 
     def residuals(self, u: np.ndarray) -> np.ndarray:
         if self.Q is None:
-            return u - u.mean()
+            r = u - u.mean()
+            return r if self.q is None else r - dot(self.q, r) * self.q
         return u - self.Q @ (self.Q.T @ u)
 
     def rss(self, u: np.ndarray) -> float:
         with np.errstate(all="ignore"):  # overflow gives inf: that power is then simply not chosen
+            if self.Q is None:  # three passes, no temporary arrays; exact fallback if digits are lost
+                n = u.size
+                s1 = float(u.sum())
+                s2 = dot(u, u)
+                out = s2 - s1 * s1 / n
+                if self.q is not None:
+                    c = dot(self.q, u)
+                    out -= c * c
+                if np.isfinite(out) and out > 1e-8 * s2:
+                    return out
+                if not np.isfinite(s2):
+                    return float("inf")
             r = self.residuals(u)
-            return float(r @ r)
+            return dot(r, r)
 
 
 def gaussian_loglik(rss: float, n: int) -> float:
@@ -77,7 +102,12 @@ class BoxCoxProfile:
             logv = np.log(v)
             self.m = float(logv.mean())
             self.d = logv - self.m
+            self._buf = np.empty_like(self.d)
+            #: added to the profile to give the log-likelihood in the units of y (kept out of the
+            #: maximisation so that huge or tiny scales lose no digits there)
+            self.offset = -self.n * self.m
         else:
+            self.offset = 0.0
             self.v = v
             self.jac = float(np.sum(np.sign(v) * np.log1p(np.abs(v))))
 
@@ -87,11 +117,19 @@ class BoxCoxProfile:
     def loglik(self, lam: float) -> float:
         """Log-likelihood in the original units of y at power ``lam``."""
         if self.family == "ladder":
-            u = centred_power(self.d, lam)
-            if not np.all(np.isfinite(u)):
+            # RSS of (v**lam - 1)/lam is exp(2 lam m) * RSS(u), u = expm1(lam d)/lam, and the Jacobian
+            # is (lam-1) n m: together a constant (self.offset) plus the Gaussian term of RSS(u).
+            u = self._buf
+            with np.errstate(over="ignore", invalid="ignore"):
+                if abs(lam) < 1e-12:
+                    rss = self.design.rss(self.d)
+                else:
+                    np.multiply(self.d, lam, out=u)
+                    np.expm1(u, out=u)
+                    rss = self.design.rss(u) / (lam * lam)
+            if not np.isfinite(rss):
                 return -np.inf
-            # RSS of (v**lam - 1)/lam is exp(2 lam m) * RSS(u); Jacobian (lam-1) n m.
-            return gaussian_loglik(self.design.rss(u), self.n) - self.n * self.m
+            return gaussian_loglik(rss, self.n)
         from .express import _yj
         t = _yj(self.v, lam)
         if not np.all(np.isfinite(t)):
@@ -123,19 +161,19 @@ class XPowerProfile:
         U = U - U.mean(axis=0)
         if U.shape[1] == 1:
             u = U[:, 0]
-            suu = float(u @ u)
+            suu = dot(u, u)
             if suu <= 0:
                 return -np.inf
-            suy = float(u @ self.y)
-            rss = float(self.y @ self.y) - suy * suy / suu
+            suy = dot(u, self.y)
+            rss = dot(self.y, self.y) - suy * suy / suu
             # guard against cancellation when the fit is nearly exact
-            if rss < 1e-8 * float(self.y @ self.y):
+            if rss < 1e-8 * dot(self.y, self.y):
                 r = self.y - u * (suy / suu)
-                rss = float(r @ r)
+                rss = dot(r, r)
         else:
             coef, *_ = np.linalg.lstsq(U, self.y, rcond=None)
             r = self.y - U @ coef
-            rss = float(r @ r)
+            rss = dot(r, r)
         return gaussian_loglik(rss, self.n)
 
 

@@ -202,6 +202,7 @@ def suggest_power(y, x=None, *, level=0.95, y_start=0.0, x_power=1.0, x_start=0.
         design = lik.Design(t_x.apply(Xu))
     prof = lik.BoxCoxProfile(yu + (y_start if family == "ladder" else 0.0), design, family=family)
     est, lo, hi, top = lik.profile_max(prof, level)
+    top += prof.offset
     given = "" if Xu is None else f" given x at power {x_power:g}"
     method = f"Box-Cox profile likelihood{given}" if family == "ladder" else f"Yeo-Johnson profile likelihood{given}"
     return _suggestion(est, lo, hi, level=level, what="y", method=method, n=yu.size,

@@ -9,6 +9,7 @@ from scipy import stats
 from ._validation import UnbendError, as_matrix, as_vector, usable_rows
 from .diagnostics import ALPHA, Check, make_check, normality_test, pattern_bins, pattern_test
 from .express import LADDER, Reexpression, rung_label
+from ._likelihood import dot
 from .fitting import fit as _fit, gaussian_loglik_with_jacobian
 
 __all__ = ["scan", "best_pair"]
@@ -141,15 +142,15 @@ def _scan_one_x(yu, xu, rungs, y_start, x_start):
             continue
         xt = t.apply(xu)
         c = xt - xt.mean()
-        sxx = float(c @ c)
+        sxx = dot(c, c)
         if not np.isfinite(sxx) or sxx <= 0 or np.ptp(xt) == 0:
             xs[px] = "x does not vary at this power"
             continue
         q2 = c / np.sqrt(sxx)
         w = (c / c.std()) ** 2
         w = w - w.mean()
-        w = w - (w @ q2) * q2
-        nw = float(np.sqrt(w @ w))
+        w = w - dot(w, q2) * q2
+        nw = float(np.sqrt(dot(w, w)))
         q3 = w / nw if nw > 1e-10 * np.sqrt(n) else None
         xs[px] = (xt, q2, q3)
     out = []
@@ -160,11 +161,11 @@ def _scan_one_x(yu, xu, rungs, y_start, x_start):
             yt = ty.apply(yu)
             ybar = yt.mean()
             yc = yt - ybar
-            tss = float(yc @ yc)
+            tss = dot(yc, yc)
             with np.errstate(divide="ignore"):
                 jac = float(np.sum(np.log(np.abs(ty.derivative(yu)))))
             dy = yu - yu.mean()
-            tss_orig = float(dy @ dy)
+            tss_orig = dot(dy, dy)
         for px in rungs:
             rec = {"y_power": py, "x_power": px, "y_rung": rung_label(py), "x_rung": rung_label(px), "n": int(n)}
             xi = xs[px]
@@ -176,9 +177,9 @@ def _scan_one_x(yu, xu, rungs, y_start, x_start):
                 continue
             xt, q2, q3 = xi
             with np.errstate(all="ignore"):
-                b = float(q2 @ yc)
+                b = dot(q2, yc)
                 resid = yc - b * q2
-                rss = float(resid @ resid)
+                rss = dot(resid, resid)
             if not (np.isfinite(rss) and np.isfinite(tss)):
                 out.append(_impossible(rec, "values too large at this power; rescale the data"))
                 continue
@@ -194,7 +195,7 @@ def _pair_checks(out, rec, n, ty, yu, yt, resid, rss, tss, tss_orig, jac, q2, q3
         if q3 is None or n < 5:
             curv = Check("Tukey one-degree-of-freedom", np.nan, np.nan, None, 0.0)
         else:
-            c3 = float(q3 @ resid)
+            c3 = dot(q3, resid)
             df3 = n - 3
             rss3 = rss - c3 * c3
             if rss3 <= 0:
@@ -210,14 +211,15 @@ def _pair_checks(out, rec, n, ty, yu, yt, resid, rss, tss, tss_orig, jac, q2, q3
         else:
             e2 = resid * resid
             d = e2 - e2.mean()
-            dd = float(d @ d)
+            dd = dot(d, d)
             if dd == 0:
                 spr = Check("Breusch-Pagan (Koenker)", 0.0, 1.0, True, 0.0)
             else:
-                lm = n * np.float64(q2 @ d) ** 2 / dd
+                lm = n * np.float64(dot(q2, d)) ** 2 / dd
                 pv = float(stats.chi2.sf(lm, 1))
-                cc = np.corrcoef(np.abs(resid), fitted)[0, 1] if np.ptp(fitted) > 0 else 0.0
-                spr = make_check("Breusch-Pagan (Koenker)", lm, pv, ALPHA, np.sign(cc) if np.isfinite(cc) else 0.0)
+                ar = np.abs(resid)
+                cc = dot(ar - ar.mean(), q2)  # fitted = mean + b q2: its sign follows b
+                spr = make_check("Breusch-Pagan (Koenker)", lm, pv, ALPHA, np.sign(cc * dot(q2, yt)))
         nor = normality_test(resid)
         with np.errstate(invalid="ignore", over="ignore"):
             back = ty.invert(fitted)

@@ -101,6 +101,20 @@ def _cell_number(v) -> float:
 
 def _floats(flat: list) -> np.ndarray:
     """A new 1-D float array from a list of cell values (fast path when all are plain numbers)."""
+    # Fastest: let numpy infer the type. A float result means every cell was a float, an int or a
+    # bool; bools can only hide where the value is 1 or 0, so only those cells need a type check.
+    try:
+        arr = np.array(flat)
+    except (OverflowError, TypeError, ValueError):
+        arr = None
+    if arr is not None and arr.ndim == 1 and arr.dtype.kind in "fi" and arr.dtype.itemsize == 8:
+        arr = arr.astype(float, copy=False)
+        hits = np.flatnonzero((arr == 1.0) | (arr == 0.0))
+        if not any(type(flat[i]) not in _FAST_TYPES for i in hits.tolist()):
+            bad = ~np.isfinite(arr)
+            if bad.any():
+                arr[bad] = np.nan
+            return arr
     if set(map(type, flat)) <= _FAST_TYPES:
         try:
             arr = np.array(flat, dtype=float)
@@ -193,15 +207,15 @@ def _parse(cells, numeric: bool, name: str):
             return "row", []
         if not isinstance(cells[0], (list, tuple, np.ndarray)):
             return "row", cells
+        first = cells[0]
+        cells = _trim_rows(cells)  # first: a whole column is mostly blank rows
+        if not cells:  # all blank: keep the width of the range for to_block
+            return "blank", len(first)
         try:  # one column: every row has exactly one cell (map/chain run at C speed)
             if set(map(len, cells)) == {1}:
                 return "column", list(itertools.chain.from_iterable(cells))
         except TypeError:
             pass
-        first = cells[0]
-        cells = _trim_rows(cells)  # before the checks below: a whole column is mostly blank
-        if not cells:  # all blank: keep the width of the range for to_block
-            return "blank", len(first)
         if set(map(type, cells)) <= {list, tuple}:
             return "rows", cells
         rows = []
@@ -371,8 +385,16 @@ def pad_rows(*arrays: np.ndarray) -> tuple:
 
 # --------------------------------------------------------------------------- cells out
 
+_INF = float("inf")
+
+
 def _out(v):
     """One value as a plain Python cell value; missing, nan and inf become ""."""
+    t = type(v)
+    if t is float:  # the common case first, without the slower checks below
+        return v if (v == v and v != _INF and v != -_INF) else ""
+    if t is str or t is int or t is bool:
+        return v
     if isinstance(v, np.ndarray) and v.size == 1:
         v = v.reshape(-1)[0]
     if isinstance(v, np.generic) and not isinstance(v, (np.datetime64, np.timedelta64)):
