@@ -144,7 +144,12 @@ class XPowerProfile:
         self._yt, self._x = yt, xpos
         if not np.all(np.isfinite(yt)):
             raise UnbendError("y has values that cannot be re-expressed at this power; add a start or choose another power.")
-        self.y = yt - yt.mean()
+        yc = yt - yt.mean()
+        scale = float(np.max(np.abs(yc))) if yc.size else 1.0
+        scale = scale if scale > 0 and np.isfinite(scale) else 1.0
+        self.y = yc / scale  # sums in scaled units: no overflow or underflow at extreme scales
+        #: added to the profile to give the log-likelihood in the units of y
+        self.offset = -yt.size * np.log(scale)
         L = np.log(xpos)
         self.D = L - L.mean(axis=0)
         if np.any(self.D.std(axis=0) == 0):

@@ -18,6 +18,8 @@ __all__ = [
     "usable_rows",
     "check_level",
     "check_power",
+    "check_number",
+    "check_varies",
     "Rows",
     "MIN_ROWS",
     "FEW_ROWS",
@@ -47,20 +49,67 @@ class DomainError(UnbendError):
         self.proposed_start = float(proposed_start)
 
 
+def _numeric_array(values, name: str) -> np.ndarray:
+    """A new float array of the same shape; every cell that is not a real number becomes NaN.
+
+    One rule for every input type: ints and floats (Python, numpy, pandas)
+    are numbers; text (even "12"), booleans, dates, times and missing values
+    are not. Infinite values stay infinite here and are skipped later as
+    non-finite.
+    """
+    if hasattr(values, "to_numpy") and not isinstance(values, np.ndarray):  # pandas objects
+        try:
+            values = values.to_numpy(dtype=float, na_value=np.nan)
+        except (TypeError, ValueError):
+            values = values.to_numpy(dtype=object)
+    if isinstance(values, np.ndarray):
+        kind = values.dtype.kind
+        if kind in "fiu":
+            with np.errstate(over="ignore"):
+                return values.astype(float)  # a copy
+        if kind != "O":  # bool, text, dates, durations, complex: not numbers
+            return np.full(values.shape, np.nan)
+        obj = values
+    else:
+        if isinstance(values, (list, tuple)) and values and isinstance(values[0], (list, tuple)):
+            widths = {len(r) if isinstance(r, (list, tuple)) else -1 for r in values}
+            if len(widths) > 1:
+                raise UnbendError(f"the rows of {name} have different numbers of cells; give a rectangular "
+                                  "block (one column per predictor).")
+        try:  # fast path: numpy infers a numeric type; bools could hide only where a value is 0 or 1
+            guess = np.array(values)
+        except (TypeError, ValueError, OverflowError):
+            guess = None
+        if guess is not None and guess.dtype.kind in "fi" and guess.dtype.itemsize == 8:
+            hits = np.argwhere((guess == 0) | (guess == 1))
+            if not any(isinstance(_at(values, tuple(ix)), (bool, np.bool_)) for ix in hits.tolist()):
+                return guess.astype(float, copy=False)
+        try:
+            obj = np.array(values, dtype=object)
+        except (TypeError, ValueError):
+            raise UnbendError(f"{name} could not be read as a column or block of numbers.") from None
+    if obj.size == 0:
+        return np.zeros(obj.shape)
+    return np.vectorize(_to_float, otypes=[float])(obj)
+
+
+def _at(values, index):
+    for i in index:
+        values = values[i]
+    return values
+
+
 def as_vector(values, name: str = "values") -> np.ndarray:
     """Return a new 1-D float array; text and other non-numbers become NaN."""
     if values is None:
         raise UnbendError(f"{name} is empty; give a column of numbers.")
-    if np.isscalar(values):
+    if np.isscalar(values) or isinstance(values, (np.generic,)):
         values = [values]
-    try:
-        arr = np.array(values, dtype=float, copy=True)
-    except (TypeError, ValueError):
-        arr = np.array([_to_float(v) for v in np.ravel(np.asarray(values, dtype=object))], dtype=float)
+    arr = _numeric_array(values, name)
     if arr.ndim == 2 and 1 in arr.shape:
         arr = arr.reshape(-1)
     if arr.ndim != 1:
-        raise UnbendError(f"{name} must be one column of numbers; got shape {arr.shape}.")
+        raise UnbendError(f"{name} must be one column of numbers; got a block of shape {arr.shape}.")
     return arr
 
 
@@ -68,27 +117,47 @@ def as_matrix(x, name: str = "x") -> np.ndarray:
     """Return a new 2-D float array, one column per predictor."""
     if x is None:
         raise UnbendError(f"{name} is empty; give a column of numbers.")
-    if np.isscalar(x):
+    if np.isscalar(x) or isinstance(x, np.generic):
         x = [x]
-    try:
-        arr = np.array(x, dtype=float, copy=True)
-    except (TypeError, ValueError):
-        obj = np.asarray(x, dtype=object)
-        arr = np.vectorize(_to_float, otypes=[float])(obj) if obj.size else np.zeros(obj.shape)
+    arr = _numeric_array(x, name)
     if arr.ndim == 1:
         arr = arr[:, None]
     if arr.ndim != 2:
         raise UnbendError(f"{name} must be a column, or a block with one column per predictor; got shape {arr.shape}.")
+    if arr.shape[1] == 0:
+        raise UnbendError(f"{name} has no columns; give at least one column of numbers.")
     return arr
 
 
 def _to_float(v) -> float:
-    if isinstance(v, (bool, np.bool_)) or v is None:
+    if v is None or isinstance(v, (bool, np.bool_, str, bytes)):
         return np.nan
+    if isinstance(v, (int, float, np.integer, np.floating)):
+        try:
+            return float(v)
+        except OverflowError:  # an integer beyond the float range
+            return np.nan
+    return np.nan
+
+
+def check_number(value, name: str) -> float:
+    """A finite number, or UnbendError saying what is expected."""
+    if isinstance(value, (bool, np.bool_)) or value is None:
+        raise UnbendError(f"{name} must be a number; got {value!r}.")
     try:
-        return float(v)
-    except (TypeError, ValueError):
-        return np.nan
+        v = float(value)
+    except (TypeError, ValueError, OverflowError):
+        raise UnbendError(f"{name} must be a number; got {value!r}.") from None
+    if not np.isfinite(v):
+        raise UnbendError(f"{name} must be a finite number; got {value!r}.")
+    return v
+
+
+def check_varies(y: np.ndarray, name: str = "y") -> None:
+    """Refuse a column whose usable values are all the same."""
+    if y.size and np.ptp(y) == 0:
+        raise UnbendError(f"{name} does not vary (every {name} value is {y[0]:g}); there is nothing to straighten "
+                          "or fit.")
 
 
 @dataclass(frozen=True)

@@ -91,17 +91,28 @@ def propose_start(values, power: float = 0.0) -> float:
     >>> propose_start([0, 1, 2, 5])
     0.5
     """
+    power = check_power(power)
     v = as_vector(values)
     v = v[np.isfinite(v)]
     if v.size == 0:
         return 0.0
     lo = float(v.min())
-    bound, strict = _lowest_allowed(float(power), "ladder")
+    bound, strict = _lowest_allowed(power, "ladder")
     if lo > bound or (lo == bound and not strict):
         return 0.0
     u = np.unique(v)
-    gap = float(np.min(np.diff(u))) if u.size > 1 else 2.0
-    return float(-lo + gap / 2.0)
+    with np.errstate(over="ignore"):
+        gap = float(np.min(np.diff(u))) if u.size > 1 else 2.0
+    if not np.isfinite(gap):
+        gap = 2.0
+    start = -lo + gap / 2.0
+    # make sure rounding cannot leave the smallest value on the boundary
+    while np.isfinite(start) and not (lo + start > bound):
+        start = start * 2.0 if start > 0 else abs(lo) + 1.0
+    if not np.isfinite(start):
+        raise UnbendError("the values are too large to shift by a start; rescale them (divide by a power of 10) "
+                          "first.")
+    return float(start)
 
 
 @dataclass(frozen=True)
@@ -154,7 +165,8 @@ class Reexpression:
         if self.family != "ladder":
             return
         bound, strict = _lowest_allowed(self.power, self.family)
-        v = values[np.isfinite(values)] + self.start
+        with np.errstate(over="ignore"):
+            v = values[np.isfinite(values)] + self.start
         bad = (v <= bound) if strict else (v < bound)
         nbad = int(bad.sum())
         if nbad == 0:
@@ -178,7 +190,8 @@ class Reexpression:
         p = self.power
         if self.family == "yeo-johnson":
             return _yj(y, p)
-        v = y + self.start
+        with np.errstate(over="ignore"):
+            v = y + self.start
         with np.errstate(all="ignore"):
             if p == 1.0:
                 out = v

@@ -168,16 +168,17 @@ class LineFit:
         return "\n".join(lines)
 
 
-def gaussian_loglik_with_jacobian(rss: float, n: int, jac: float) -> float:
+def gaussian_loglik_with_jacobian(rss: float, n: int, jac: float, log_scale: float = 0.0) -> float:
     """Normal log-likelihood in the original units of y; NaN when it is not comparable.
 
-    ``jac`` is the sum of log |d re-expressed y / d y|. At y = 0 a power below
+    ``jac`` is the sum of log |d re-expressed y / d y|; ``rss`` may be given in
+    scaled units with ``log_scale`` the log of the scale squared. At y = 0 a power below
     1 has an infinite derivative, so the likelihood is unbounded and says
     nothing; such fits get NaN (a start such as 0.5 makes them comparable).
     """
     if not np.isfinite(jac) or rss <= 0:
         return float("nan")
-    return float(-0.5 * n * (np.log(2 * np.pi) + 1 + np.log(rss / n)) + jac)
+    return float(-0.5 * n * (np.log(2 * np.pi) + 1 + np.log(rss / n) + log_scale) + jac)
 
 
 def _word(c: Check, good: str, bad: str) -> str:
@@ -187,12 +188,17 @@ def _word(c: Check, good: str, bad: str) -> str:
 
 
 def _design(Xt: np.ndarray):
-    mu = Xt.mean(axis=0)
-    sc = Xt.std(axis=0)
-    if np.any(sc == 0) or not np.all(np.isfinite(sc)):
+    """[1, centred and scaled x]; columns are first divided by their largest size so that
+    neither the mean nor the spread overflows or underflows at extreme scales."""
+    big = np.max(np.abs(Xt), axis=0)
+    big[(big == 0) | ~np.isfinite(big)] = 1.0
+    Xs = Xt / big
+    mu_s = Xs.mean(axis=0)
+    sc_s = Xs.std(axis=0)
+    if np.any(sc_s == 0) or not np.all(np.isfinite(sc_s)):
         raise UnbendError("x does not vary (every x value is the same); a line needs at least two different x values.")
-    A = np.column_stack([np.ones(Xt.shape[0]), (Xt - mu) / sc])
-    return A, mu, sc
+    A = np.column_stack([np.ones(Xt.shape[0]), (Xs - mu_s) / sc_s])
+    return A, mu_s * big, sc_s * big
 
 
 def fit(y, x, *, y_power=1.0, x_power=1.0, y_start=0.0, x_start=0.0, level=0.95,
@@ -270,22 +276,34 @@ def fit(y, x, *, y_power=1.0, x_power=1.0, y_start=0.0, x_start=0.0, level=0.95,
     if d.min() <= d.max() * 1e-10:
         raise UnbendError("the x columns are collinear (one is a combination of the others, or x barely varies); "
                           "remove a column.")
-    bc = linalg.solve_triangular(R, Q.T @ yt)
-    r = yt - A @ bc
+    # y is divided by its largest size for the sums (no overflow or underflow at extreme scales)
+    ybig = float(np.max(np.abs(yt)))
+    if ybig == 0 or not np.isfinite(ybig):
+        ybig = 1.0
+    ys = yt / ybig
+    bc = linalg.solve_triangular(R, Q.T @ ys)
+    r = ys - A @ bc
     bc = bc + linalg.solve_triangular(R, Q.T @ r)  # one step of iterative refinement
-    fitted = A @ bc
-    resid = yt - fitted
+    fitted_s = A @ bc
+    resid_s = ys - fitted_s
     df = n - p
     with np.errstate(all="ignore"):
-        rss = float(resid @ resid)
-        tss_check = float(((yt - yt.mean()) ** 2).sum())
-    if not (np.isfinite(rss) and np.isfinite(tss_check)) or not np.all(np.isfinite(bc)):
+        rss_s = float(resid_s @ resid_s)
+        tss_s = float(((ys - ys.mean()) ** 2).sum())
+    if not (np.isfinite(rss_s) and np.isfinite(tss_s)) or not np.all(np.isfinite(bc)):
         raise UnbendError("the values are too large to fit at this power (the sums overflow); rescale the data or "
                           "choose a power nearer 1.")
-    s2 = rss / df
-    s = np.sqrt(s2)
+    if tss_s == 0:
+        raise UnbendError("y does not vary at this power (every re-expressed y is the same); there is nothing to fit.")
+    s_s = np.sqrt(rss_s / df)
     Rinv = linalg.solve_triangular(R, np.eye(p))
-    cov_c = s2 * (Rinv @ Rinv.T)
+    cov_c = (s_s * s_s) * (Rinv @ Rinv.T)
+    # back to the units of y
+    bc = bc * ybig
+    fitted = fitted_s * ybig
+    resid = resid_s * ybig
+    s = s_s * ybig
+    rss = rss_s * ybig * ybig  # may underflow at tiny scales; the likelihood below uses logs instead
     # back to the units of the re-expressed x: beta = T beta_c
     T = np.zeros((p, p))
     T[0, 0] = 1.0
@@ -293,30 +311,33 @@ def fit(y, x, *, y_power=1.0, x_power=1.0, y_start=0.0, x_start=0.0, level=0.95,
     T[1:, 1:] = np.diag(1.0 / sc)
     coef = T @ bc
     cov = T @ cov_c @ T.T
-    se = np.sqrt(np.clip(np.diag(cov), 0, None))
+    se = np.sqrt(np.clip(np.diag(cov), 0, None)) * ybig
     with np.errstate(divide="ignore", invalid="ignore"):
         tv = coef / se
     pv = 2 * stats.t.sf(np.abs(tv), df)
     tq = stats.t.ppf(0.5 + level / 2, df)
-    ybar = yt.mean()
-    tss = float(((yt - ybar) ** 2).sum())
-    r2 = 1.0 - rss / tss if tss > 0 else float("nan")
-    adj = 1.0 - (1.0 - r2) * (n - 1) / df if tss > 0 else float("nan")
+    r2 = 1.0 - rss_s / tss_s
+    adj = 1.0 - (1.0 - r2) * (n - 1) / df
     back = y_t.invert(fitted)
-    dy = yu - yu.mean()
-    with np.errstate(invalid="ignore", over="ignore"):
-        r2o = 1.0 - float(((yu - back) ** 2).sum()) / float(dy @ dy) if float(dy @ dy) > 0 else float("nan")
+    with np.errstate(all="ignore"):
+        ub = float(np.max(np.abs(yu)))
+        ub = ub if ub > 0 and np.isfinite(ub) else 1.0
+        dy = (yu - yu.mean()) / ub
+        den = float(dy @ dy)
+        r2o = 1.0 - float((((yu - back) / ub) ** 2).sum()) / den if den > 0 else float("nan")
+    if not np.isfinite(r2o):
+        r2o = float("nan")
 
     h = np.einsum("ij,ij->i", Q, Q)
-    with np.errstate(divide="ignore", invalid="ignore"):
-        std = resid / (s * np.sqrt(1.0 - h))
-        s_i2 = (rss - resid ** 2 / (1.0 - h)) / (df - 1) if df > 1 else np.full(n, np.nan)
-        stud = resid / np.sqrt(s_i2 * (1.0 - h))
+    with np.errstate(divide="ignore", invalid="ignore"):  # ratios: computed in the scaled units
+        std = resid_s / (s_s * np.sqrt(1.0 - h))
+        s_i2 = (rss_s - resid_s ** 2 / (1.0 - h)) / (df - 1) if df > 1 else np.full(n, np.nan)
+        stud = resid_s / np.sqrt(s_i2 * (1.0 - h))
         cook = std ** 2 * h / (p * (1.0 - h))
 
     warnings = []
     if k > 1:
-        C = np.corrcoef(Xt, rowvar=False)
+        C = np.corrcoef(A[:, 1:], rowvar=False)
         try:
             vif = np.diag(np.linalg.inv(C))
             if np.max(vif) > VIF_WARN:
@@ -329,24 +350,27 @@ def fit(y, x, *, y_power=1.0, x_power=1.0, y_start=0.0, x_start=0.0, level=0.95,
     if rows.skipped:
         warnings.append(rows.skipped_text())
 
-    curv = curvature_test(A, yt, fitted)
-    pat = pattern_test(resid, pattern_bins(Xu[:, 0] if k == 1 else fitted))
-    spr = spread_test(Xt, resid, fitted)
-    nor = normality_test(resid)
+    curv = curvature_test(A, ys, fitted_s)
+    pat = pattern_test(resid_s, pattern_bins(Xu[:, 0] if k == 1 else fitted_s))
+    spr = spread_test(A[:, 1:], resid_s, fitted_s)
+    nor = normality_test(resid_s)
     if x_names is None and hasattr(x, "columns"):
         x_names = [str(c) for c in x.columns]
     elif x_names is None and hasattr(x, "name") and isinstance(getattr(x, "name"), str) and k == 1:
         x_names = [x.name]
     if y_name is None:
         y_name = y.name if isinstance(getattr(y, "name", None), str) else "y"
-    names = tuple(x_names) if x_names is not None else (("x",) if k == 1 else tuple(f"x{i + 1}" for i in range(k)))
+    if x_names is not None and (isinstance(x_names, (str, bytes)) or not hasattr(x_names, "__iter__")):
+        raise UnbendError("x_names must be a list of names, one per x column, such as ['flow'].")
+    names = tuple(str(nm) for nm in x_names) if x_names is not None else (
+        ("x",) if k == 1 else tuple(f"x{i + 1}" for i in range(k)))
     if len(names) != k:
-        raise UnbendError(f"x_names has {len(names)} names for {k} x columns.")
+        raise UnbendError(f"x_names has {len(names)} name(s) but x has {k} column(s); give one name per x column.")
 
     # log-likelihood in original y units (Jacobian of the y re-expression included)
     with np.errstate(divide="ignore"):
         jac = float(np.sum(np.log(np.abs(y_t.derivative(yu)))))
-    ll = gaussian_loglik_with_jacobian(rss, n, jac)
+    ll = gaussian_loglik_with_jacobian(rss_s, n, jac, log_scale=2.0 * np.log(ybig))
 
     table = pd.DataFrame({"row": np.flatnonzero(rows.used) + 1, "y": yu})
     for j, nm in enumerate(names):

@@ -8,8 +8,8 @@ import numpy as np
 import pandas as pd
 from scipy import optimize, stats
 
-from ._validation import (FEW_ROWS, DomainError, UnbendError, as_matrix, as_vector,
-                          check_level, usable_rows)
+from ._validation import (FEW_ROWS, DomainError, UnbendError, as_matrix, as_vector, check_level,
+                          check_number, check_power, check_varies, usable_rows)
 from .express import LADDER, Reexpression, rung_label
 from . import _likelihood as lik
 
@@ -78,7 +78,12 @@ def choose_rung(estimate: float, low: float, high: float, rungs=None, *, what: s
     -------
     (rung, note) : (float, str)
     """
-    rungs = tuple(float(r) for r in (rungs if rungs is not None else LADDER))
+    rungs = _rungs(rungs)
+    estimate = float(estimate) if estimate is not None else np.nan
+    low = float(low) if low is not None else -np.inf
+    high = float(high) if high is not None else np.inf
+    if np.isnan(estimate) or np.isnan(low) or np.isnan(high):
+        raise UnbendError("the estimate and both interval ends must be numbers (ends may be -inf or inf).")
     if low <= 1.0 <= high:
         return 1.0, f"1 lies inside the interval, so no re-expression of {what} is needed."
     inside = [r for r in rungs if low <= r <= high]
@@ -99,6 +104,18 @@ def interval_words(low: float, high: float) -> str:
     if np.isfinite(high):
         return f"{high:.3g} and below, with no lower end"
     return "no end in either direction"
+
+
+def _rungs(rungs) -> tuple:
+    """Validated rungs: a non-empty list of powers between -100 and 100 (default the six of the ladder)."""
+    if rungs is None:
+        return tuple(LADDER)
+    if np.isscalar(rungs):
+        rungs = [rungs]
+    out = tuple(check_power(r, "a rung") for r in rungs)
+    if not out:
+        raise UnbendError("rungs is empty; give at least one power, such as 1, 0.5 and 0.")
+    return out
 
 
 def _cautions(n: int, low: float, high: float) -> str:
@@ -134,6 +151,7 @@ def _prepare(y, x, y_name="y", x_name="x"):
     rows = usable_rows(yv, X, y_name=y_name, x_name=x_name)
     yu = yv[rows.used]
     Xu = None if X is None else X[rows.used]
+    check_varies(yu, y_name)
     return yu, Xu, rows
 
 
@@ -191,6 +209,7 @@ def suggest_power(y, x=None, *, level=0.95, y_start=0.0, x_power=1.0, x_start=0.
     'log'
     """
     level = check_level(level)
+    rungs = _rungs(rungs)
     yu, Xu, rows = _prepare(y, x)
     t_y = Reexpression(0.0, y_start, family=family)
     if family == "ladder":
@@ -242,6 +261,9 @@ def suggest_x_power(y, x, *, level=0.95, y_power=1.0, y_start=0.0, x_start=0.0,
     'log'
     """
     level = check_level(level)
+    rungs = _rungs(rungs)
+    if x is None:
+        raise UnbendError("suggest_x_power needs x: give the x column (or block) as the second argument.")
     yu, Xu, rows = _prepare(y, x)
     t_y = Reexpression(y_power, y_start)
     t_y.check(yu, "y")
@@ -249,6 +271,7 @@ def suggest_x_power(y, x, *, level=0.95, y_power=1.0, y_start=0.0, x_start=0.0,
     t_x.check(Xu.ravel(), "x")
     prof = lik.XPowerProfile(t_y.apply(yu), Xu + x_start)
     est, lo, hi, top = lik.profile_max(prof, level)
+    top += prof.offset
     cols = "" if Xu.shape[1] == 1 else f" (one power shared by {Xu.shape[1]} x columns)"
     return _suggestion(est, lo, hi, level=level, what="x",
                        method=f"profile likelihood over the x power (Box-Tidwell), y at power {y_power:g}{cols}",
@@ -331,7 +354,9 @@ def spread_power(values, groups, *, level=0.95, start=0.0, rungs=None) -> PowerS
     'log'
     """
     level = check_level(level)
-    v = as_vector(values, "values") + float(start)
+    rungs = _rungs(rungs)
+    with np.errstate(over="ignore"):
+        v = as_vector(values, "values") + check_number(start, "start")
     g = np.asarray(groups, dtype=object).reshape(-1)
     if g.size != v.size:
         raise UnbendError(f"values has {v.size} rows but groups has {g.size}; give ranges of the same length.")
@@ -353,6 +378,9 @@ def spread_power(values, groups, *, level=0.95, start=0.0, rungs=None) -> PowerS
             "Check the group column, or add a start if values are 0 or below.")
     lx = np.log(detail.loc[use, "level"].to_numpy())
     ly = np.log(detail.loc[use, "spread"].to_numpy())
+    if np.ptp(lx) == 0:
+        raise UnbendError("every group has the same level (median), so spread cannot be related to level; "
+                          "spread against level needs groups at different levels.")
     res = stats.linregress(lx, ly)
     gcount = lx.size
     if gcount > 2 and np.isfinite(res.stderr):

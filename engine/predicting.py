@@ -35,8 +35,9 @@ def smeared_mean(fit, eta: np.ndarray) -> np.ndarray:
     ok = np.isfinite(eta)
     if t.family == "ladder" and t.power == 0.0:
         base = 10.0 if t.log10 else math.e
-        factor = float(np.mean(np.power(base, e)))
-        out[ok] = np.power(base, eta[ok]) * factor - t.start
+        with np.errstate(over="ignore"):
+            factor = float(np.mean(np.power(base, e)))
+            out[ok] = np.power(base, eta[ok]) * factor - t.start
         return out
     if t.family == "ladder" and t.power == 1.0:
         out[ok] = eta[ok] + float(e.mean()) - t.start
@@ -228,6 +229,12 @@ prediction_columns.__doc__ = ("The columns of :func:`predict` as a dict of array
                               "that need speed.")
 
 
+def _pow(base: float, e: float) -> float:
+    """base ** e without an exception when it overflows (gives inf)."""
+    with np.errstate(over="ignore"):
+        return float(np.power(float(base), float(e)))
+
+
 def _pct(mult: float) -> str:
     ch = (mult - 1.0) * 100.0
     return f"{'+' if ch >= 0 else ''}{ch:.3g}%"
@@ -250,12 +257,12 @@ def slope_reading(fit) -> str:
         if ylog and xlog:
             e = b * math.log(base_y) / math.log(base_x)
             out.append(f"1% more {nm} goes with about {e:.3g}% more {y} (doubling {nm} multiplies the typical {y} by "
-                       f"{2 ** e:.4g}).")
+                       f"{_pow(2.0, e):.4g}).")
         elif ylog and px == 1.0:
-            mult = base_y ** b
+            mult = _pow(base_y, b)
             out.append(f"each 1 unit more of {nm} multiplies the typical {y} by {mult:.4g} ({_pct(mult)}).")
         elif ylog:
-            out.append(f"each 1 unit more of {_of(fit.x_expr, nm)} multiplies the typical {y} by {base_y ** b:.4g}.")
+            out.append(f"each 1 unit more of {_of(fit.x_expr, nm)} multiplies the typical {y} by {_pow(base_y, b):.4g}.")
         elif fit.y_expr.is_identity and xlog:
             out.append(f"doubling {nm} adds {b * math.log(2) / math.log(base_x):.4g} to {y}.")
         elif fit.y_expr.is_identity and fit.x_expr.is_identity:

@@ -6,9 +6,10 @@ import pandas as pd
 
 from scipy import stats
 
-from ._validation import UnbendError, as_matrix, as_vector, usable_rows
+from ._validation import UnbendError, as_matrix, as_vector, check_number, check_power, check_varies, usable_rows
 from .diagnostics import ALPHA, Check, make_check, normality_test, pattern_bins, pattern_test
 from .express import LADDER, Reexpression, rung_label
+from .power import _rungs
 from ._likelihood import dot
 from .fitting import fit as _fit, gaussian_loglik_with_jacobian
 
@@ -35,7 +36,7 @@ def _short(f) -> str:
     return "holds (no clear curvature, even spread)"
 
 
-def scan(y, x, *, y_start=0.0, x_start=0.0, rungs=None) -> pd.DataFrame:
+def scan(y, x, *, y_start=0.0, x_start=0.0, rungs=None, x_rungs=None) -> pd.DataFrame:
     """Fit the line for every pair of rungs and rank them, best first.
 
     Parameters
@@ -45,7 +46,10 @@ def scan(y, x, *, y_start=0.0, x_start=0.0, rungs=None) -> pd.DataFrame:
     y_start, x_start : float
         Added before re-expressing.
     rungs : sequence of float, optional
-        Rungs to try for both y and x (default the six of the ladder).
+        Rungs to try for y, and for x unless ``x_rungs`` is given (default
+        the six of the ladder).
+    x_rungs : sequence of float, optional
+        Rungs to try for x.
 
     Returns
     -------
@@ -87,12 +91,16 @@ def scan(y, x, *, y_start=0.0, x_start=0.0, rungs=None) -> pd.DataFrame:
     X = as_matrix(x, "x")
     rows = usable_rows(yv, X, need=max(3, X.shape[1] + 2))
     yu, Xu = yv[rows.used], X[rows.used]
-    rungs = tuple(float(r) for r in (rungs if rungs is not None else LADDER))
+    check_varies(yu, "y")
+    y_start = check_number(y_start, "y_start")
+    x_start = check_number(x_start, "x_start")
+    y_rungs = _rungs(rungs)
+    x_rungs = _rungs(x_rungs) if x_rungs is not None else y_rungs
     with np.errstate(all="ignore"):  # overflow at extreme powers becomes "not possible", never a crash
         if Xu.shape[1] == 1:
-            out = _scan_one_x(yu, Xu[:, 0], rungs, y_start, x_start)
+            out = _scan_one_x(yu, Xu[:, 0], y_rungs, x_rungs, y_start, x_start)
         else:
-            out = _scan_general(yu, Xu, rungs, y_start, x_start)
+            out = _scan_general(yu, Xu, y_rungs, x_rungs, y_start, x_start)
     t = pd.DataFrame(out)
     t["_ll"] = t["loglik"].where(np.isfinite(t["loglik"]), -np.inf)
     t = t.sort_values(by=["_ok", "_curv", "_ll"], ascending=[False, False, False], kind="mergesort")
@@ -124,7 +132,7 @@ def _record(rec, *, loglik, curvature, pattern, spread, normality, r2, r2_origin
     return rec
 
 
-def _scan_one_x(yu, xu, rungs, y_start, x_start):
+def _scan_one_x(yu, xu, y_rungs, x_rungs, y_start, x_start):
     """One x column: each rung's columns once, then each pair by a few passes over the data.
 
     Gives the same numbers as :func:`unbend.fit` (the tests hold it to that):
@@ -134,7 +142,7 @@ def _scan_one_x(yu, xu, rungs, y_start, x_start):
     n = yu.size
     bins = pattern_bins(xu)
     xs = {}
-    for px in rungs:
+    for px in x_rungs:
         t = Reexpression(px, x_start)
         err = _domain(t, xu, "x")
         if err:
@@ -154,19 +162,24 @@ def _scan_one_x(yu, xu, rungs, y_start, x_start):
         q3 = w / nw if nw > 1e-10 * np.sqrt(n) else None
         xs[px] = (xt, q2, q3)
     out = []
-    for py in rungs:
+    for py in y_rungs:
         ty = Reexpression(py, y_start)
         y_err = _domain(ty, yu, "y")
         if not y_err:
-            yt = ty.apply(yu)
+            yt_raw = ty.apply(yu)
+            ybig = float(np.max(np.abs(yt_raw)))
+            ybig = ybig if ybig > 0 and np.isfinite(ybig) else 1.0
+            yt = yt_raw / ybig  # sums in scaled units, as fit() does
             ybar = yt.mean()
             yc = yt - ybar
             tss = dot(yc, yc)
             with np.errstate(divide="ignore"):
                 jac = float(np.sum(np.log(np.abs(ty.derivative(yu)))))
-            dy = yu - yu.mean()
+            ub = float(np.max(np.abs(yu)))
+            ub = ub if ub > 0 and np.isfinite(ub) else 1.0
+            dy = (yu - yu.mean()) / ub  # scaled: no overflow at extreme scales
             tss_orig = dot(dy, dy)
-        for px in rungs:
+        for px in x_rungs:
             rec = {"y_power": py, "x_power": px, "y_rung": rung_label(py), "x_rung": rung_label(px), "n": int(n)}
             xi = xs[px]
             if y_err or isinstance(xi, str):
@@ -183,12 +196,13 @@ def _scan_one_x(yu, xu, rungs, y_start, x_start):
             if not (np.isfinite(rss) and np.isfinite(tss)):
                 out.append(_impossible(rec, "values too large at this power; rescale the data"))
                 continue
-            _pair_checks(out, rec, n, ty, yu, yt, resid, rss, tss, tss_orig, jac, q2, q3, bins)
+            _pair_checks(out, rec, n, ty, yu, yt, resid, rss, tss, tss_orig, jac, q2, q3, bins, ybig)
     return out
 
 
-def _pair_checks(out, rec, n, ty, yu, yt, resid, rss, tss, tss_orig, jac, q2, q3, bins):
-    """The checks of one pair of rungs (one x column), appended to ``out``."""
+def _pair_checks(out, rec, n, ty, yu, yt, resid, rss, tss, tss_orig, jac, q2, q3, bins, ybig):
+    """The checks of one pair of rungs (one x column), appended to ``out``; yt, resid, rss, tss are
+    in units of ``ybig``."""
     with np.errstate(all="ignore"):
         fitted = yt - resid
         # Tukey's one degree of freedom: the squared column, orthogonal to the line
@@ -209,10 +223,13 @@ def _pair_checks(out, rec, n, ty, yu, yt, resid, rss, tss, tss_orig, jac, q2, q3
         if n < 4:
             spr = Check("Breusch-Pagan (Koenker)", np.nan, np.nan, None, 0.0)
         else:
-            e2 = resid * resid
+            top = float(np.max(np.abs(resid)))
+            e2 = (resid / top) ** 2 if top > 0 and np.isfinite(top) else resid * resid  # scaled: no underflow
             d = e2 - e2.mean()
             dd = dot(d, d)
-            if dd == 0:
+            if not np.isfinite(dd):
+                spr = Check("Breusch-Pagan (Koenker)", np.nan, np.nan, None, 0.0)
+            elif dd == 0:
                 spr = Check("Breusch-Pagan (Koenker)", 0.0, 1.0, True, 0.0)
             else:
                 lm = n * np.float64(dot(q2, d)) ** 2 / dd
@@ -222,19 +239,23 @@ def _pair_checks(out, rec, n, ty, yu, yt, resid, rss, tss, tss_orig, jac, q2, q3
                 spr = make_check("Breusch-Pagan (Koenker)", lm, pv, ALPHA, np.sign(cc * dot(q2, yt)))
         nor = normality_test(resid)
         with np.errstate(invalid="ignore", over="ignore"):
-            back = ty.invert(fitted)
-            r2o = 1.0 - float(((yu - back) ** 2).sum()) / tss_orig if tss_orig > 0 else np.nan
+            back = ty.invert(fitted * ybig)
+            ub = float(np.max(np.abs(yu)))
+            ub = ub if ub > 0 and np.isfinite(ub) else 1.0
+            r2o = 1.0 - float((((yu - back) / ub) ** 2).sum()) / tss_orig if tss_orig > 0 else np.nan
+            if not np.isfinite(r2o):
+                r2o = np.nan
         r2 = 1.0 - rss / tss if tss > 0 else np.nan
-        ll = gaussian_loglik_with_jacobian(rss, n, jac)
+        ll = gaussian_loglik_with_jacobian(rss, n, jac, log_scale=2.0 * np.log(ybig))
         out.append(_record(rec, loglik=ll, curvature=curv, pattern=pat, spread=spr, normality=nor,
                            r2=r2, r2_original=r2o))
 
 
-def _scan_general(yu, Xu, rungs, y_start, x_start):
+def _scan_general(yu, Xu, y_rungs, x_rungs, y_start, x_start):
     out = []
-    for py in rungs:
+    for py in y_rungs:
         y_err = _domain(Reexpression(py, y_start), yu, "y")
-        for px in rungs:
+        for px in x_rungs:
             rec = {"y_power": py, "x_power": px, "y_rung": rung_label(py), "x_rung": rung_label(px),
                    "n": int(yu.size)}
             err = y_err or _domain(Reexpression(px, x_start), Xu.ravel(), "x")
@@ -272,19 +293,25 @@ def best_pair(y, x, *, y_start=0.0, x_start=0.0, rungs=None, y_power=None, x_pow
     -------
     (y_power, x_power) : tuple of float
     """
-    t = table if table is not None else scan(y, x, y_start=y_start, x_start=x_start, rungs=rungs if rungs is not None else _with(y_power, x_power))
-    ok = ~t["verdict"].str.startswith("not possible")
+    y_power = None if y_power is None else check_power(y_power, "y_power")
+    x_power = None if x_power is None else check_power(x_power, "x_power")
+    base = _rungs(rungs)
+    y_r = base + ((y_power,) if y_power is not None and y_power not in base else ())
+    x_r = base + ((x_power,) if x_power is not None and x_power not in base else ())
+    t = table if table is not None else scan(y, x, y_start=y_start, x_start=x_start, rungs=y_r, x_rungs=x_r)
+    pinned = np.ones(len(t), dtype=bool)
     if y_power is not None:
-        ok &= t["y_power"] == float(y_power)
+        pinned &= (t["y_power"] == y_power).to_numpy()
     if x_power is not None:
-        ok &= t["x_power"] == float(x_power)
+        pinned &= (t["x_power"] == x_power).to_numpy()
+    ok = pinned & ~t["verdict"].str.startswith("not possible").to_numpy()
     if not ok.any():
-        why = t["verdict"].iloc[0].replace("not possible: ", "") if len(t) else ""
-        raise UnbendError(f"no pair of rungs can be fitted to these data ({why.rstrip('.')}).")
+        cand = t[pinned] if pinned.any() else t
+        why = cand["verdict"].iloc[0].replace("not possible: ", "") if len(cand) else "no rows"
+        raise UnbendError(f"no pair of rungs can be fitted to these data ({why.rstrip('.')}); "
+                          "pin other powers, add a start, or check the data.")
+
     row = t[ok].iloc[0]
     return float(row["y_power"]), float(row["x_power"])
 
 
-def _with(*pinned):
-    extra = [float(p) for p in pinned if p is not None and float(p) not in LADDER]
-    return tuple(LADDER) + tuple(extra) if extra else None
