@@ -42,6 +42,9 @@ class Design:
             return
         if not np.isfinite(X).all():
             raise UnbendError("x has values that cannot be re-expressed at this power; add a start or choose another power.")
+        big = np.max(np.abs(X), axis=0)
+        big[(big == 0) | ~np.isfinite(big)] = 1.0
+        X = X / big  # columns scaled to at most 1: no overflow in the mean or spread
         mu = X.mean(axis=0)
         sc = X.std(axis=0)
         if np.any(sc == 0):

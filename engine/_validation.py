@@ -58,9 +58,10 @@ def _numeric_array(values, name: str) -> np.ndarray:
     non-finite.
     """
     if hasattr(values, "to_numpy") and not isinstance(values, np.ndarray):  # pandas objects
-        try:
+        kinds = {getattr(d, "kind", "O") for d in (values.dtypes if hasattr(values, "columns") else [values.dtype])}
+        if kinds <= set("fiu"):
             values = values.to_numpy(dtype=float, na_value=np.nan)
-        except (TypeError, ValueError):
+        else:  # dates, booleans, text or a mix: judged cell by cell
             values = values.to_numpy(dtype=object)
     if isinstance(values, np.ndarray):
         kind = values.dtype.kind
@@ -155,9 +156,9 @@ def check_number(value, name: str) -> float:
 
 def check_varies(y: np.ndarray, name: str = "y") -> None:
     """Refuse a column whose usable values are all the same."""
-    if y.size and np.ptp(y) == 0:
+    if y.size and (y.max() == y.min()):
         raise UnbendError(f"{name} does not vary (every {name} value is {y[0]:g}); there is nothing to straighten "
-                          "or fit.")
+                          f"or fit. Check that the {name} range is the one you meant.")
 
 
 @dataclass(frozen=True)

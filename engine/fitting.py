@@ -294,7 +294,8 @@ def fit(y, x, *, y_power=1.0, x_power=1.0, y_start=0.0, x_start=0.0, level=0.95,
         raise UnbendError("the values are too large to fit at this power (the sums overflow); rescale the data or "
                           "choose a power nearer 1.")
     if tss_s == 0:
-        raise UnbendError("y does not vary at this power (every re-expressed y is the same); there is nothing to fit.")
+        raise UnbendError("y does not vary at this power (every re-expressed y is the same); choose another power "
+                          "or check the data.")
     s_s = np.sqrt(rss_s / df)
     Rinv = linalg.solve_triangular(R, np.eye(p))
     cov_c = (s_s * s_s) * (Rinv @ Rinv.T)
@@ -309,9 +310,17 @@ def fit(y, x, *, y_power=1.0, x_power=1.0, y_start=0.0, x_start=0.0, level=0.95,
     T[0, 0] = 1.0
     T[0, 1:] = -mu / sc
     T[1:, 1:] = np.diag(1.0 / sc)
-    coef = T @ bc
-    cov = T @ cov_c @ T.T
-    se = np.sqrt(np.clip(np.diag(cov), 0, None)) * ybig
+    with np.errstate(all="ignore"):
+        coef = T @ bc
+    # standard errors without squaring 1/sc (which underflows at extreme x scales)
+    t0 = T[0]
+    se = np.empty(p)
+    se[0] = np.sqrt(max(float(t0 @ cov_c @ t0), 0.0))
+    se[1:] = np.sqrt(np.clip(np.diag(cov_c)[1:], 0, None)) / sc
+    se = se * ybig
+    if np.any((se == 0) & (np.diag(cov_c) > 0)) or not np.all(np.isfinite(coef)) or not np.all(np.isfinite(se)):
+        raise UnbendError("at this scale the slope is beyond the range of floating-point numbers; rescale y or x "
+                          "(change units, say from grams to tonnes) and fit again.")
     with np.errstate(divide="ignore", invalid="ignore"):
         tv = coef / se
     pv = 2 * stats.t.sf(np.abs(tv), df)

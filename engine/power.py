@@ -79,11 +79,13 @@ def choose_rung(estimate: float, low: float, high: float, rungs=None, *, what: s
     (rung, note) : (float, str)
     """
     rungs = _rungs(rungs)
-    estimate = float(estimate) if estimate is not None else np.nan
-    low = float(low) if low is not None else -np.inf
-    high = float(high) if high is not None else np.inf
-    if np.isnan(estimate) or np.isnan(low) or np.isnan(high):
-        raise UnbendError("the estimate and both interval ends must be numbers (ends may be -inf or inf).")
+    try:
+        estimate, low, high = float(estimate), float(low), float(high)
+    except (TypeError, ValueError, OverflowError):
+        raise UnbendError("the estimate and both interval ends must be numbers (ends may be -inf or inf).") from None
+    if np.isnan(estimate) or np.isnan(low) or np.isnan(high) or not np.isfinite(estimate):
+        raise UnbendError("the estimate must be a finite number and both interval ends numbers (ends may be -inf "
+                          "or inf).")
     if low <= 1.0 <= high:
         return 1.0, f"1 lies inside the interval, so no re-expression of {what} is needed."
     inside = [r for r in rungs if low <= r <= high]
@@ -378,7 +380,7 @@ def spread_power(values, groups, *, level=0.95, start=0.0, rungs=None) -> PowerS
             "Check the group column, or add a start if values are 0 or below.")
     lx = np.log(detail.loc[use, "level"].to_numpy())
     ly = np.log(detail.loc[use, "spread"].to_numpy())
-    if np.ptp(lx) == 0:
+    if (lx.max() == lx.min()):
         raise UnbendError("every group has the same level (median), so spread cannot be related to level; "
                           "spread against level needs groups at different levels.")
     res = stats.linregress(lx, ly)

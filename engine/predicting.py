@@ -88,7 +88,8 @@ def normal_theory_mean(fit, eta: np.ndarray) -> np.ndarray:
     the mean does not exist, as for the reciprocal).
     """
     t = fit.y_expr
-    s2 = fit.resid_sd ** 2
+    with np.errstate(over="ignore"):
+        s2 = np.float64(fit.resid_sd) ** 2
     eta = np.asarray(eta, dtype=float)
     if t.family != "ladder":
         return np.full(eta.shape, np.nan)
@@ -180,20 +181,22 @@ def prediction_columns(fit, new_x, level: float = 0.95) -> dict:
     if k == 1 and X.shape[1] != 1:
         X = X.reshape(-1, 1)
     m = X.shape[0]
-    with np.errstate(all="ignore"):
+    with np.errstate(all="ignore"):  # new x far outside the data may overflow: their rows become inf or blank
         Xt = fit.x_expr.apply(X)
-    ok = np.isfinite(Xt).all(axis=1)
-    Ac = np.column_stack([np.ones(m), (np.where(np.isfinite(Xt), Xt, 0.0) - fit._mu) / fit._sc])
-    eta = Ac @ np.concatenate([[fit.coef[0] + fit.coef[1:] @ fit._mu], fit.coef[1:] * fit._sc])
-    g = Ac @ fit._Rinv  # se of the line = s * ||row of g||
-    se_line = fit.resid_sd * np.sqrt(np.einsum("ij,ij->i", g, g))
-    se_new = np.sqrt(fit.resid_sd ** 2 + se_line ** 2)
+        ok = np.isfinite(Xt).all(axis=1)
+        Ac = np.column_stack([np.ones(m), (np.where(np.isfinite(Xt), Xt, 0.0) - fit._mu) / fit._sc])
+        eta = Ac @ np.concatenate([[fit.coef[0] + fit.coef[1:] @ fit._mu], fit.coef[1:] * fit._sc])
+        g = Ac @ fit._Rinv  # se of the line = s * ||row of g||
+        se_line = fit.resid_sd * np.sqrt(np.einsum("ij,ij->i", g, g))
+        se_new = np.hypot(fit.resid_sd, se_line)
+    ok &= np.isfinite(eta)
     tq = _t_quantile(level, fit.df_resid)
     eta[~ok] = np.nan
     inv = fit.y_expr.invert
 
     def ends(half):
-        a, b = inv(eta - tq * half), inv(eta + tq * half)
+        with np.errstate(all="ignore"):
+            a, b = inv(eta - tq * half), inv(eta + tq * half)
         return np.fmin(a, b), np.fmax(a, b)
 
     line_lo, line_hi = ends(se_line)

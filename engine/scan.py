@@ -151,7 +151,7 @@ def _scan_one_x(yu, xu, y_rungs, x_rungs, y_start, x_start):
         xt = t.apply(xu)
         c = xt - xt.mean()
         sxx = dot(c, c)
-        if not np.isfinite(sxx) or sxx <= 0 or np.ptp(xt) == 0:
+        if not np.isfinite(sxx) or sxx <= 0 or (xt.max() == xt.min()):
             xs[px] = "x does not vary at this power"
             continue
         q2 = c / np.sqrt(sxx)
