@@ -81,6 +81,7 @@ class LineFit:
     _mu: np.ndarray = field(repr=False, compare=False)
     _sc: np.ndarray = field(repr=False, compare=False)
     _Rinv: np.ndarray = field(repr=False, compare=False)
+    _memo: dict = field(default_factory=dict, repr=False, compare=False)  # values computed once on demand
 
     @property
     def y_power(self) -> float:

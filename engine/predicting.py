@@ -35,8 +35,10 @@ def smeared_mean(fit, eta: np.ndarray) -> np.ndarray:
     ok = np.isfinite(eta)
     if t.family == "ladder" and t.power == 0.0:
         base = 10.0 if t.log10 else math.e
+        factor = fit._memo.get("smear")
         with np.errstate(over="ignore"):
-            factor = float(np.mean(np.power(base, e)))
+            if factor is None:
+                factor = fit._memo.setdefault("smear", float(np.mean(np.power(base, e))))
             out[ok] = np.power(base, eta[ok]) * factor - t.start
         return out
     if t.family == "ladder" and t.power == 1.0:
