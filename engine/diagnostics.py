@@ -1,6 +1,7 @@
 """Residual checks: curvature, change of spread, normality, and a verdict in words."""
 from __future__ import annotations
 
+import functools
 from dataclasses import dataclass
 
 import numpy as np
@@ -115,6 +116,13 @@ def pattern_bins(key: np.ndarray) -> np.ndarray:
     return rank * k // n
 
 
+@functools.lru_cache(maxsize=8)
+def _positions(n: int) -> np.ndarray:
+    out = np.arange(1.0, n + 1.0)
+    out.flags.writeable = False
+    return out
+
+
 def pattern_test(resid: np.ndarray, bins: np.ndarray) -> Check:
     """Residual pattern by level: Kruskal–Wallis test across bins of x (or of the fitted value).
 
@@ -146,7 +154,7 @@ def pattern_test(resid: np.ndarray, bins: np.ndarray) -> Check:
         ties = 1.0
     cnt = np.bincount(bins).astype(float)
     if ranks is None:  # rank sums straight from the sorted order, without scattering ranks back
-        rsum = np.bincount(bins[order], weights=np.arange(1.0, n + 1.0), minlength=cnt.size)
+        rsum = np.bincount(bins[order], weights=_positions(n), minlength=cnt.size)
     else:
         rsum = np.bincount(bins, weights=ranks, minlength=cnt.size)
     full = cnt > 0  # tied x can leave a bin empty
