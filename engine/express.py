@@ -231,10 +231,10 @@ class Reexpression:
         edge of the original range: ``-start`` and ``+inf`` respectively.
         This is what a back-transformed interval end needs.
         """
-        z = np.array(values, dtype=float)
+        z = np.asarray(values, dtype=float)  # never written to: every branch makes a new array
         p = self.power
         if self.family == "yeo-johnson":
-            return _yj_inv(z, p)
+            return _yj_inv(np.array(z), p)
         with np.errstate(all="ignore"):
             if p == 1.0:
                 v = z.copy()
@@ -243,12 +243,14 @@ class Reexpression:
             elif _is_odd_integer(p):
                 v = np.sign(z) * np.power(np.abs(z), 1.0 / p)
             elif p > 0:
-                v = _pow(np.maximum(z, 0.0), 1.0 / p)
+                v = _pow(np.maximum(z, 0.0), 1.0 / p)  # NaN stays NaN
             else:
                 w = -z
                 v = np.where(w > 0, _pow(np.where(w > 0, w, 1.0), 1.0 / p), np.inf)
-        v = np.where(np.isnan(z), np.nan, v)
-        return v - self.start if self.start else v
+                v[np.isnan(z)] = np.nan
+        if self.start:
+            v -= self.start
+        return v
 
     def derivative(self, values) -> np.ndarray:
         """d(apply)/dy, used for the Jacobian of the likelihood."""
