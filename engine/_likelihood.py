@@ -214,7 +214,29 @@ def profile_max(profile, level: float, *, limit: float = 20.0):
             return _refine(profile.loglik, level, est_s, lo_s, hi_s, np.sqrt(SUBSAMPLE_SIZE / n), limit)
         except (_NoShortcut, UnbendError, np.linalg.LinAlgError):
             pass
-    return maximise_with_interval(profile.loglik, level, limit=limit)
+    try:
+        return _grid_then_refine(profile.loglik, level, limit)
+    except (_NoShortcut, np.linalg.LinAlgError):
+        return maximise_with_interval(profile.loglik, level, limit=limit)
+
+
+def _grid_then_refine(f, level, limit):
+    """A coarse grid finds the peak and its curvature; parabolic steps and narrow brackets finish."""
+    step = 0.5
+    grid = np.arange(-4.0, 4.0 + step / 2, step)
+    vals = np.array([f(g) for g in grid])
+    i = int(np.argmax(np.where(np.isfinite(vals), vals, -np.inf)))
+    if not (0 < i < grid.size - 1) or not np.all(np.isfinite(vals[i - 1:i + 2])):
+        raise _NoShortcut
+    curv = (vals[i - 1] - 2 * vals[i] + vals[i + 1]) / step ** 2
+    if not curv < 0:
+        raise _NoShortcut
+    z = np.sqrt(stats.chi2.ppf(level, 1))
+    half = z / np.sqrt(-curv)
+    # the three grid points also place the top of the parabola
+    shift = 0.5 * step * (vals[i - 1] - vals[i + 1]) / (vals[i - 1] - 2 * vals[i] + vals[i + 1])
+    est0 = float(grid[i] + np.clip(shift, -step, step))
+    return _refine(f, level, est0, est0 - half, est0 + half, 1.0, limit)
 
 
 def _parabolic_max(f, x0: float, d: float, tol: float = 1e-10, maxit: int = 40):
