@@ -374,9 +374,13 @@ def write_plots(a: Analysis, folder) -> list:
     ax.set_yticks(range(len(yr)), [unbend.rung_label(v) for v in yr])
     ax.set_xlabel("x rung")
     ax.set_ylabel("y rung")
+    finite = grid[np.isfinite(grid)]
+    lo_, hi_ = (finite.min(), finite.max()) if finite.size else (0.0, 1.0)
     for i in range(len(yr)):
         for j in range(len(xr)):
-            ax.text(j, i, mark[i, j], ha="center", va="center", color="white", fontsize=9)
+            bright = np.isfinite(grid[i, j]) and hi_ > lo_ and (grid[i, j] - lo_) / (hi_ - lo_) > 0.7
+            ax.text(j, i, mark[i, j], ha="center", va="center", color="black" if bright else "white",
+                    fontsize=9, fontweight="bold" if mark[i, j] == "best" else "normal")
     fig.colorbar(im, ax=ax, label="log-likelihood (higher is better)")
     ax.set_title("Scan of rungs: likelihood, and what the residual checks say")
     fig.tight_layout()
