@@ -13,7 +13,7 @@ import os
 
 import numpy as np
 from openpyxl import Workbook
-from openpyxl.chart import Reference, ScatterChart, Series
+from openpyxl.chart import Reference
 from openpyxl.styles import Alignment
 from openpyxl.utils import get_column_letter
 from openpyxl.worksheet.formula import ArrayFormula
@@ -23,7 +23,7 @@ import unbend
 from unbend import demo_data
 from unbend.fitting import CAUTION
 
-from .sheets import HEADER_FONT, NOTE_FONT, TITLE_FONT, atomic_save, printable, put, set_widths
+from .sheets import HEADER_FONT, NOTE_FONT, TITLE_FONT, atomic_save, printable, put, scatter_chart, set_widths
 
 __all__ = ["SCENARIOS", "build_demo_workbooks", "build_demo_workbook", "DEMO_REPORT_SCENARIO"]
 
@@ -120,28 +120,7 @@ def _config_sheet(wb):
 
 
 def _chart(ws, title, xref, yref, xlabel, ylabel, anchor):
-    ch = ScatterChart()
-    ch.title = title
-    ch.style = 2
-    ch.x_axis.title = xlabel
-    ch.y_axis.title = ylabel
-    ch.legend = None
-    s = Series(yref, xref, title=title)
-    s.marker.symbol = "circle"
-    s.marker.size = 5
-    s.marker.graphicalProperties.solidFill = "2A6F97"
-    s.marker.graphicalProperties.line.solidFill = "2A6F97"
-    s.graphicalProperties.line.noFill = True
-    ch.series.append(s)
-    ch.x_axis.delete = False
-    ch.y_axis.delete = False
-    ch.x_axis.number_format = "General"
-    ch.y_axis.number_format = "General"
-    ch.x_axis.majorGridlines = None
-    ch.x_axis.tickLblPos = "low"
-    ch.y_axis.tickLblPos = "low"
-    ch.height, ch.width = 8.5, 15
-    ws.add_chart(ch, anchor)
+    return scatter_chart(ws, title, xref, yref, xlabel, ylabel, anchor, height=8.5, width=15.0)
 
 
 def _addin_sheet(wb, sc, yref, xref, new_first, new_last):

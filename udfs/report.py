@@ -7,7 +7,7 @@ from dataclasses import dataclass, field
 import numpy as np
 import pandas as pd
 from openpyxl import Workbook
-from openpyxl.chart import Reference, ScatterChart, Series
+from openpyxl.chart import Reference
 from openpyxl.styles import Alignment
 
 import unbend
@@ -16,7 +16,7 @@ from unbend.fitting import CAUTION
 
 from . import cells
 from .sheets import (CAUTION_FONT, GENERAL, NOTE_FONT, P_FORMAT, SMART, TITLE_FONT, WARN_FILL, atomic_save, printable,
-                     put, set_widths, write_rows)
+                     put, scatter_chart, set_widths, write_rows)
 from .wording import PREDICTION_HELP, SCAN_HEADERS, SCAN_HELP, prediction_headers
 
 __all__ = ["Analysis", "analyse", "summary_lines", "write_report", "write_plots"]
@@ -152,29 +152,6 @@ def _prediction_rows(a: Analysis):
     return header, rows
 
 
-def _add_chart(ws, title, xref, yref, xlabel, ylabel, anchor):
-    ch = ScatterChart()
-    ch.title = title
-    ch.style = 2
-    ch.x_axis.title = xlabel
-    ch.y_axis.title = ylabel
-    ch.legend = None
-    s = Series(yref, xref, title=title)
-    s.marker.symbol = "circle"
-    s.marker.size = 5
-    s.marker.graphicalProperties.solidFill = "2A6F97"
-    s.marker.graphicalProperties.line.solidFill = "2A6F97"
-    s.graphicalProperties.line.noFill = True
-    ch.series.append(s)
-    ch.x_axis.delete = False
-    ch.y_axis.delete = False
-    ch.x_axis.number_format = "General"
-    ch.y_axis.number_format = "General"
-    ch.x_axis.majorGridlines = None
-    ch.x_axis.tickLblPos = "low"
-    ch.y_axis.tickLblPos = "low"
-    ch.height, ch.width = 9, 16
-    ws.add_chart(ch, anchor)
 
 
 def _wrapped(ws, r, text, width, font=None, per_line=120):
@@ -272,10 +249,10 @@ def build_report_workbook(a: Analysis) -> Workbook:
     anchor_col = len(cols) + 2
     set_widths(ws4, {j: 14 for j in range(1, len(cols) + 1)})
     set_widths(ws4, {len(cols): 24})
-    _add_chart(ws4, "Before: original units", ref(x0), ref("y"), x0, a.y_name, f"{L(anchor_col)}2")
-    _add_chart(ws4, f"After: {f.y_expr.label} of {a.y_name} against {f.x_expr.label} of {x0}", ref(f"{x0}_re"),
+    scatter_chart(ws4, "Before: original units", ref(x0), ref("y"), x0, a.y_name, f"{L(anchor_col)}2")
+    scatter_chart(ws4, f"After: {f.y_expr.label} of {a.y_name} against {f.x_expr.label} of {x0}", ref(f"{x0}_re"),
                ref("y_re"), f"{f.x_expr.label} of {x0}", f"{f.y_expr.label} of {a.y_name}", f"{L(anchor_col)}21")
-    _add_chart(ws4, "Residuals against fitted: look for a curve or a fan", ref("fitted"), ref("residual"),
+    scatter_chart(ws4, "Residuals against fitted: look for a curve or a fan", ref("fitted"), ref("residual"),
                "fitted (re-expressed)", "residual", f"{L(anchor_col)}40")
 
     if a.spread is not None and a.spread.detail is not None:

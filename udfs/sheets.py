@@ -9,8 +9,25 @@ import numpy as np
 from openpyxl.styles import Alignment, Font, PatternFill
 from openpyxl.utils import get_column_letter
 
-__all__ = ["put", "put_text", "printable", "CAUTION_FONT", "WARN_FILL", "GENERAL", "P_FORMAT", "SMART", "smart_format", "write_rows", "atomic_save", "same_file", "set_widths", "HEADER_FONT",
-           "TITLE_FONT", "NOTE_FONT"]
+__all__ = [
+    "put",
+    "put_text",
+    "printable",
+    "scatter_chart",
+    "CAUTION_FONT",
+    "WARN_FILL",
+    "GENERAL",
+    "P_FORMAT",
+    "SMART",
+    "smart_format",
+    "write_rows",
+    "atomic_save",
+    "same_file",
+    "set_widths",
+    "HEADER_FONT",
+    "TITLE_FONT",
+    "NOTE_FONT",
+]
 
 _FACE = "Liberation Sans"  # a metric match for the common sans fonts, present wherever LibreOffice is
 TITLE_FONT = Font(name=_FACE, bold=True, size=14)
@@ -154,3 +171,32 @@ def atomic_save(save, path) -> str:
             os.unlink(tmp)
         raise
     return path
+
+
+def scatter_chart(ws, title, xref, yref, xlabel, ylabel, anchor, *, height=9.0, width=16.0):
+    """A native scatter chart (points only) that any spreadsheet program draws without the add-in."""
+    from openpyxl.chart import ScatterChart, Series
+
+    ch = ScatterChart()
+    ch.title = title
+    ch.style = 2
+    ch.x_axis.title = xlabel
+    ch.y_axis.title = ylabel
+    ch.legend = None
+    s = Series(yref, xref, title=title)
+    s.marker.symbol = "circle"
+    s.marker.size = 5
+    s.marker.graphicalProperties.solidFill = "2A6F97"
+    s.marker.graphicalProperties.line.solidFill = "2A6F97"
+    s.graphicalProperties.line.noFill = True
+    ch.series.append(s)
+    ch.x_axis.delete = False
+    ch.y_axis.delete = False
+    ch.x_axis.number_format = "General"
+    ch.y_axis.number_format = "General"
+    ch.x_axis.majorGridlines = None
+    ch.x_axis.tickLblPos = "low"
+    ch.y_axis.tickLblPos = "low"
+    ch.height, ch.width = height, width
+    ws.add_chart(ch, anchor)
+    return ch
