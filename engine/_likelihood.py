@@ -90,6 +90,8 @@ class Design:
 
 def gaussian_loglik(rss: float, n: int) -> float:
     """Maximised normal log-likelihood of a linear model with residual sum of squares ``rss``."""
+    if not rss < np.inf:  # inf or NaN: this power cannot be evaluated
+        return -np.inf
     return -0.5 * n * (_LOG2PI1 + np.log(max(rss, _TINY) / n))
 
 
@@ -134,10 +136,12 @@ class BoxCoxProfile:
                 return -np.inf
             return gaussian_loglik(rss, self.n)
         from .express import _yj
-        t = _yj(self.v, lam)
-        if not np.all(np.isfinite(t)):
-            return -np.inf
-        return gaussian_loglik(self.design.rss(t), self.n) + (lam - 1.0) * self.jac
+        with np.errstate(all="ignore"):
+            t = _yj(self.v, lam)
+            if not np.all(np.isfinite(t)):
+                return -np.inf
+            out = gaussian_loglik(self.design.rss(t), self.n) + (lam - 1.0) * self.jac
+        return out if np.isfinite(out) else -np.inf
 
 
 class XPowerProfile:
@@ -179,7 +183,12 @@ class XPowerProfile:
                 r = self.y - u * (suy / suu)
                 rss = dot(r, r)
         else:
-            coef, *_ = np.linalg.lstsq(U, self.y, rcond=None)
+            if not np.all(np.isfinite(U)):
+                return -np.inf
+            try:
+                coef, *_ = np.linalg.lstsq(U, self.y, rcond=None)
+            except np.linalg.LinAlgError:
+                return -np.inf
             r = self.y - U @ coef
             rss = dot(r, r)
         return gaussian_loglik(rss, self.n)
@@ -205,6 +214,11 @@ def profile_max(profile, level: float, *, limit: float = 20.0):
     full-data answer (the subsample only chooses where to look); if the
     brackets do not hold, the full search runs instead.
     """
+    with np.errstate(all="ignore"):  # powers where the likelihood is -inf are simply not chosen
+        return _profile_max(profile, level, limit)
+
+
+def _profile_max(profile, level, limit):
     n = profile.n
     if n > SUBSAMPLE_ABOVE:
         idx = np.sort(np.random.default_rng(20240611).choice(n, SUBSAMPLE_SIZE, replace=False))

@@ -221,7 +221,12 @@ def suggest_power(y, x=None, *, level=0.95, y_start=0.0, x_power=1.0, x_start=0.
         t_x = Reexpression(x_power, x_start)
         t_x.check(Xu.ravel(), "x")
         design = lik.Design(t_x.apply(Xu))
-    prof = lik.BoxCoxProfile(yu + (y_start if family == "ladder" else 0.0), design, family=family)
+    with np.errstate(over="ignore"):
+        v = yu + (t_y.start if family == "ladder" else 0.0)
+    if not np.all(np.isfinite(v)):
+        raise UnbendError("y plus the start is too large for floating point; rescale y (change its units) or use a "
+                          "smaller start.")
+    prof = lik.BoxCoxProfile(v, design, family=family)
     est, lo, hi, top = lik.profile_max(prof, level)
     top += prof.offset
     given = "" if Xu is None else f" given x at power {x_power:g}"
@@ -271,7 +276,12 @@ def suggest_x_power(y, x, *, level=0.95, y_power=1.0, y_start=0.0, x_start=0.0,
     t_y.check(yu, "y")
     t_x = Reexpression(0.0, x_start)
     t_x.check(Xu.ravel(), "x")
-    prof = lik.XPowerProfile(t_y.apply(yu), Xu + x_start)
+    with np.errstate(over="ignore"):
+        xv = Xu + t_x.start
+    if not np.all(np.isfinite(xv)):
+        raise UnbendError("x plus the start is too large for floating point; rescale x (change its units) or use a "
+                          "smaller start.")
+    prof = lik.XPowerProfile(t_y.apply(yu), xv)
     est, lo, hi, top = lik.profile_max(prof, level)
     top += prof.offset
     cols = "" if Xu.shape[1] == 1 else f" (one power shared by {Xu.shape[1]} x columns)"

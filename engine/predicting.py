@@ -240,6 +240,15 @@ def _pow(base: float, e: float) -> float:
         return float(np.power(float(base), float(e)))
 
 
+def _n(v: float, digits: int = 4) -> str:
+    """A number for a sentence; overflow is said in words."""
+    if np.isnan(v):
+        return "an amount too extreme to compute"
+    if np.isinf(v):
+        return "more than 1e308 (too large to show)" if v > 0 else "less than -1e308 (too large to show)"
+    return f"{v:.{digits}g}"
+
+
 def _pct(mult: float) -> str:
     ch = (mult - 1.0) * 100.0
     return f"{'+' if ch >= 0 else ''}{ch:.3g}%"
@@ -261,19 +270,20 @@ def slope_reading(fit) -> str:
     for nm, b in zip(fit.x_names, fit.coef[1:]):
         if ylog and xlog:
             e = b * math.log(base_y) / math.log(base_x)
-            out.append(f"1% more {nm} goes with about {e:.3g}% more {y} (doubling {nm} multiplies the typical {y} by "
-                       f"{_pow(2.0, e):.4g}).")
+            out.append(f"1% more {nm} goes with about {_n(e, 3)}% more {y} (doubling {nm} multiplies the typical "
+                       f"{y} by {_n(_pow(2.0, e))}).")
         elif ylog and px == 1.0:
             mult = _pow(base_y, b)
-            out.append(f"each 1 unit more of {nm} multiplies the typical {y} by {mult:.4g} ({_pct(mult)}).")
+            tail = f" ({_pct(mult)})" if np.isfinite(mult) else ""
+            out.append(f"each 1 unit more of {nm} multiplies the typical {y} by {_n(mult)}{tail}.")
         elif ylog:
-            out.append(f"each 1 unit more of {_of(fit.x_expr, nm)} multiplies the typical {y} by {_pow(base_y, b):.4g}.")
+            out.append(f"each 1 unit more of {_of(fit.x_expr, nm)} multiplies the typical {y} by {_n(_pow(base_y, b))}.")
         elif fit.y_expr.is_identity and xlog:
-            out.append(f"doubling {nm} adds {b * math.log(2) / math.log(base_x):.4g} to {y}.")
+            out.append(f"doubling {nm} adds {_n(b * math.log(2) / math.log(base_x))} to {y}.")
         elif fit.y_expr.is_identity and fit.x_expr.is_identity:
-            out.append(f"each 1 unit more of {nm} adds {b:.4g} to {y}.")
+            out.append(f"each 1 unit more of {nm} adds {_n(b)} to {y}.")
         else:
-            out.append(f"each 1 unit more of {_of(fit.x_expr, nm)} changes {_of(fit.y_expr, y)} by {b:.4g}; "
+            out.append(f"each 1 unit more of {_of(fit.x_expr, nm)} changes {_of(fit.y_expr, y)} by {_n(b)}; "
                        "in original units the change depends on where you are, so read it from the predictions.")
     text = " ".join(out)
     return text[0].upper() + text[1:] if text else text
