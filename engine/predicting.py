@@ -118,59 +118,8 @@ def _t_quantile(level: float, df: int) -> float:
     return float(stats.t.ppf(0.5 + level / 2, df))
 
 
-def predict(fit, new_x, level: float = 0.95) -> pd.DataFrame:
-    return pd.DataFrame(prediction_columns(fit, new_x, level))
-
-
-predict.__doc__ = None  # replaced below with the full description
-
-
 def prediction_columns(fit, new_x, level: float = 0.95) -> dict:
-    """Predict y in original units at new x.
-
-    Parameters
-    ----------
-    fit : LineFit
-    new_x : array_like
-        One value, a column, or (for several x columns) a block with one row
-        per new point. Non-numbers give a row of blanks with a note.
-    level : float
-        Level of both intervals.
-
-    Returns
-    -------
-    pandas.DataFrame
-        One row per new x, with columns: the x value(s); ``fitted`` (on the
-        re-expressed scale); ``median`` (the back-transformed line); ``mean``
-        (Duan's smearing estimate); ``mean_normal`` (normal-theory mean where
-        a closed form exists); ``line_low``, ``line_high`` (interval for the
-        median); ``low``, ``high`` (prediction interval for one new
-        observation); ``outside_range`` (True when a new x is outside the
-        observed x range: extrapolation); ``note``.
-
-    Notes
-    -----
-    Intervals are found on the re-expressed scale with Student's t and
-    transformed back end by end; because the re-expression is monotone the
-    ends stay exact, and they are put in increasing order. The median is the
-    back-transformed line; the mean needs the bias correction because the
-    back-transform is not linear (Jensen's inequality).
-
-    References
-    ----------
-    Duan, N. (1983). *JASA* 78(383), 605-610.
-    Miller, D. M. (1984). Reducing transformation bias in curve fitting.
-    *The American Statistician* 38(2), 124-126.
-
-    Examples
-    --------
-    >>> import numpy as np, unbend
-    >>> x = np.arange(1.0, 21.0)
-    >>> y = np.exp(0.5 + 0.1 * x + np.random.default_rng(5).normal(0, 0.1, 20))
-    >>> p = unbend.fit(y, x, y_power=0).predict([5.0, 30.0])
-    >>> bool(p["outside_range"].iloc[1])
-    True
-    """
+    """The columns of :func:`predict` as a dict of arrays, without building a DataFrame (for speed)."""
     level = check_level(level)
     k = len(fit.x_names)
     X = as_matrix(new_x, "new x")
@@ -229,9 +178,53 @@ def prediction_columns(fit, new_x, level: float = 0.95) -> dict:
     return cols
 
 
-predict.__doc__ = prediction_columns.__doc__
-prediction_columns.__doc__ = ("The columns of :func:`predict` as a dict of arrays (no DataFrame), for callers "
-                              "that need speed.")
+def predict(fit, new_x, level: float = 0.95) -> pd.DataFrame:
+    """Predict y in original units at new x.
+
+    Parameters
+    ----------
+    fit : LineFit
+    new_x : array_like
+        One value, a column, or (for several x columns) a block with one row
+        per new point. Non-numbers give a row of blanks with a note.
+    level : float
+        Level of both intervals.
+
+    Returns
+    -------
+    pandas.DataFrame
+        One row per new x, with columns: the x value(s); ``fitted`` (on the
+        re-expressed scale); ``median`` (the back-transformed line); ``mean``
+        (Duan's smearing estimate); ``mean_normal`` (normal-theory mean where
+        a closed form exists); ``line_low``, ``line_high`` (interval for the
+        median); ``low``, ``high`` (prediction interval for one new
+        observation); ``outside_range`` (True when a new x is outside the
+        observed x range: extrapolation); ``note``.
+
+    Notes
+    -----
+    Intervals are found on the re-expressed scale with Student's t and
+    transformed back end by end; because the re-expression is monotone the
+    ends stay exact, and they are put in increasing order. The median is the
+    back-transformed line; the mean needs the bias correction because the
+    back-transform is not linear (Jensen's inequality).
+
+    References
+    ----------
+    Duan, N. (1983). *JASA* 78(383), 605-610.
+    Miller, D. M. (1984). Reducing transformation bias in curve fitting.
+    *The American Statistician* 38(2), 124-126.
+
+    Examples
+    --------
+    >>> import numpy as np, unbend
+    >>> x = np.arange(1.0, 21.0)
+    >>> y = np.exp(0.5 + 0.1 * x + np.random.default_rng(5).normal(0, 0.1, 20))
+    >>> p = unbend.fit(y, x, y_power=0).predict([5.0, 30.0])
+    >>> bool(p["outside_range"].iloc[1])
+    True
+    """
+    return pd.DataFrame(prediction_columns(fit, new_x, level))
 
 
 def _pow(base: float, e: float) -> float:
