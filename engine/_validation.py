@@ -57,6 +57,9 @@ def _numeric_array(values, name: str) -> np.ndarray:
     are not. Infinite values stay infinite here and are skipped later as
     non-finite.
     """
+    if not isinstance(values, (list, tuple, np.ndarray)) and not hasattr(values, "dtype") \
+            and not hasattr(values, "dtypes") and not hasattr(values, "__len__"):
+        values = [values]  # one cell: a date, a timestamp or another lone object
     if hasattr(values, "to_numpy") and not isinstance(values, np.ndarray):  # pandas objects
         kinds = {getattr(d, "kind", "O") for d in (values.dtypes if hasattr(values, "columns") else [values.dtype])}
         if kinds <= set("fiu"):

@@ -254,6 +254,11 @@ def fit(y, x, *, y_power=1.0, x_power=1.0, y_start=0.0, x_start=0.0, level=0.95,
     >>> round(float(f.coef[1]), 6)
     0.5
     """
+    with np.errstate(all="ignore"):  # every overflow ends in a check below and a plain message
+        return _fit(y, x, y_power, x_power, y_start, x_start, level, log10, y_family, x_names, y_name)
+
+
+def _fit(y, x, y_power, x_power, y_start, x_start, level, log10, y_family, x_names, y_name) -> LineFit:
     level = check_level(level)
     yv = as_vector(y, "y")
     X = as_matrix(x, "x")
@@ -316,9 +321,10 @@ def fit(y, x, *, y_power=1.0, x_power=1.0, y_start=0.0, x_start=0.0, level=0.95,
     # standard errors without squaring 1/sc (which underflows at extreme x scales)
     t0 = T[0]
     se = np.empty(p)
-    se[0] = np.sqrt(max(float(t0 @ cov_c @ t0), 0.0))
-    se[1:] = np.sqrt(np.clip(np.diag(cov_c)[1:], 0, None)) / sc
-    se = se * ybig
+    with np.errstate(all="ignore"):  # beyond floating point: refused just below
+        se[0] = np.sqrt(max(float(t0 @ cov_c @ t0), 0.0))
+        se[1:] = np.sqrt(np.clip(np.diag(cov_c)[1:], 0, None)) / sc
+        se = se * ybig
     if np.any((se == 0) & (np.diag(cov_c) > 0)) or not np.all(np.isfinite(coef)) or not np.all(np.isfinite(se)):
         raise UnbendError("at this scale the slope is beyond the range of floating-point numbers; rescale y or x "
                           "(change units, say from grams to tonnes) and fit again.")

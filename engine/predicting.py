@@ -120,6 +120,11 @@ def _t_quantile(level: float, df: int) -> float:
 
 def prediction_columns(fit, new_x, level: float = 0.95) -> dict:
     """The columns of :func:`predict` as a dict of arrays, without building a DataFrame (for speed)."""
+    with np.errstate(all="ignore"):  # extreme new x give inf or blank cells with a note, never a warning
+        return _prediction_columns(fit, new_x, level)
+
+
+def _prediction_columns(fit, new_x, level):
     level = check_level(level)
     k = len(fit.x_names)
     X = as_matrix(new_x, "new x")
@@ -140,7 +145,7 @@ def prediction_columns(fit, new_x, level: float = 0.95) -> dict:
         g = Ac @ fit._Rinv  # se of the line = s * ||row of g||
         se_line = fit.resid_sd * np.sqrt(np.einsum("ij,ij->i", g, g))
         se_new = np.hypot(fit.resid_sd, se_line)
-    ok &= np.isfinite(eta)
+    ok &= np.isfinite(eta) & np.isfinite(X).all(axis=1)  # an infinite x is not a number, even where x**p is
     tq = _t_quantile(level, fit.df_resid)
     eta[~ok] = np.nan
     inv = fit.y_expr.invert
