@@ -246,6 +246,15 @@ def UNBEND_SYMMETRY(values):
     return _rows_table(s.rows())
 
 
+def _column_through(engine_fn, values, power, start, missing_power):
+    """Cells -> numbers -> express/unexpress -> a column (or one number for one cell)."""
+    p = cells.optional_number(power, "power")
+    if p is None:
+        raise UnbendError(missing_power)
+    s = cells.optional_number(start, "start", 0.0)
+    return _shape_like(values, engine_fn(cells.to_numbers(values, "values"), p, s))
+
+
 def _shape_like(cells_in, out):
     """A column of results, or one number for one cell."""
     if out.size == 1 and not isinstance(cells_in, (list, tuple, np.ndarray)):
@@ -257,24 +266,15 @@ def _shape_like(cells_in, out):
                start="Optional start added before re-expressing (default 0).")
 def UNBEND_APPLY(values, power, start=None):
     """The values re-expressed at a power (negative powers as -value^power, so order is kept)."""
-    p = cells.optional_number(power, "power")
-    if p is None:
-        raise UnbendError("give a power, such as 0.5 or 0 (log).")
-    s = cells.optional_number(start, "start", 0.0)
-    v = cells.to_numbers(values, "values")
-    return _shape_like(values, unbend.express(v, p, s))
+    return _column_through(unbend.express, values, power, start, "give a power, such as 0.5 or 0 (log).")
 
 
 @cell_function(values="Range of re-expressed values to take back to original units.",
                power="The power they were re-expressed with.", start="The start that was added (default 0).")
 def UNBEND_UNDO(values, power, start=None):
     """Re-expressed values taken back to original units (the exact inverse of UNBEND_APPLY)."""
-    p = cells.optional_number(power, "power")
-    if p is None:
-        raise UnbendError("give the power the values were re-expressed with.")
-    s = cells.optional_number(start, "start", 0.0)
-    v = cells.to_numbers(values, "values")
-    return _shape_like(values, unbend.unexpress(v, p, s))
+    return _column_through(unbend.unexpress, values, power, start,
+                           "give the power the values were re-expressed with.")
 
 
 @cell_function(y=_Y, x="Range of x values, one column.", y_power=_YP, x_power=_XP,
