@@ -8,10 +8,15 @@ blank cell, ``str`` for text (a cell error is ``None``, or text such as
 
 Rules used throughout (our own decisions, kept in one place):
 
-* Only real numbers count: ``int`` and ``float`` (Python or numpy).  Text is
-  never a number, not even ``" 12.5 "``; neither are ``True``/``False``,
-  dates, times and durations.  ``nan`` and ``±inf`` are not numbers either.
-  Every non-number becomes ``NaN``; the engine then skips that row and says so.
+* What counts as a number, and why any other value is skipped, is decided by
+  :mod:`unbend.udfs.intake`, the one set of reading rules the command uses
+  too: numbers written as text (``" 12.5 "``, ``"1.234,5"``, ``"12 mg/L"``,
+  ``"45%"``) are read, dates and times become days or hours since a stated
+  origin, summary labels and values below a detection limit are skipped in
+  their own categories; ``True``/``False`` and ``±inf`` are never numbers.
+  Every value not used becomes ``NaN`` and its reason is counted:
+  :func:`read`, :func:`read_block` and :func:`read_rows` keep the reasons;
+  :func:`to_numbers` and :func:`to_block` give the numbers alone.
 * Trailing blank cells (``None``) at the end of a range are dropped, so a whole
   column such as ``A:A`` costs no more than its filled part.  Use
   :func:`pad_rows` to bring several trimmed ranges back to one length.
@@ -38,6 +43,10 @@ from unbend import UnbendError
 
 __all__ = [
     "CellError",
+    "read",
+    "read_block",
+    "read_rows",
+    "check_enough",
     "CELL_ERRORS",
     "to_numbers",
     "to_block",
@@ -200,8 +209,12 @@ def _parse(cells, numeric: bool, name: str):
             arr = cells.astype(float)  # always a copy
             arr[~np.isfinite(arr)] = np.nan
             return "array", arr
-        if numeric and kind != "O":  # text, bool, dates, durations, complex: not numbers
+        if numeric and kind in "bc":  # booleans and complex numbers: never numbers
             return "array", np.full(cells.shape, np.nan)
+        if kind == "M":  # dates: as datetime objects (tolist() of nanoseconds would give integers)
+            cells = cells.astype("datetime64[us]")
+        elif kind == "m":
+            cells = cells.astype("timedelta64[us]")
         cells = cells.tolist()  # python objects, new lists
         if not isinstance(cells, list):
             return "row", [cells]
@@ -282,13 +295,118 @@ def to_numbers(cells, name: str = "values") -> np.ndarray:
         For a block with more than one row and more than one column, or a
         range nested deeper than rows x columns.
     """
+    return read(cells, name).values
+
+
+def read(cells, name: str = "values", **options):
+    """Read one row or one column of cells by the reading rules, keeping every value's reason.
+
+    Parameters
+    ----------
+    cells : scalar, list, list of lists, numpy array or pandas Series
+        As xlwings delivers it.
+    name : str
+        What the argument is called in messages.
+    **options
+        Passed to :func:`unbend.udfs.intake.read_column` (``decimal``, ``date_origin`` ...).
+
+    Returns
+    -------
+    unbend.udfs.intake.ColumnReading
+        Trailing blank cells dropped; a blank argument gives an empty reading.
+    """
+    from .intake import read_flat
+
     kind, data = _parse(cells, True, name)
     if kind == "array":
         if data.ndim == 2 and data.shape[0] > 1 and data.shape[1] > 1:
             raise CellError(f"{name} must be one row or one column; "
                             f"got a block of {data.shape[0]} rows x {data.shape[1]} columns.")
-        return data.reshape(-1)
-    return _floats(_trim_cells(_one_dim(kind, data, name)))
+        data = data.reshape(-1)
+    else:
+        data = _trim_cells(_one_dim(kind, data, name))
+    return read_flat(data, name, **options)
+
+
+def read_block(cells, name: str = "x", flat_as: str = "column", **options) -> list:
+    """Read a block of cells (rows x columns) column by column by the reading rules.
+
+    Returns
+    -------
+    list of unbend.udfs.intake.ColumnReading
+        One per column, named ``name`` for a single column and ``name1``,
+        ``name2`` ... otherwise; all of one length (trailing blank rows dropped).
+    """
+    from .intake import read_flat
+
+    if flat_as not in ("column", "row"):
+        raise ValueError("flat_as must be 'column' or 'row'")
+    kind, data = _parse(cells, True, name)
+    if kind == "array":
+        arr = data if data.ndim == 2 else (data.reshape(-1)[:, None] if flat_as == "column" else data.reshape(1, -1))
+        cols = [arr[:, j] for j in range(arr.shape[1])]
+    elif kind == "blank":
+        cols = [[] for _ in range(max(int(data), 1))]
+    elif kind == "rows":
+        widths = set(map(len, data))
+        w = max(widths, default=0)
+        rows = data if len(widths) <= 1 else [list(r) + [None] * (w - len(r)) for r in data]
+        cols = [list(c) for c in zip(*rows)] if w else []
+    else:
+        flat = _trim_cells(data)
+        cols = [flat] if (kind == "column" or flat_as == "column") else [[v] for v in flat]
+    names = [name] if len(cols) == 1 else [f"{name}{j + 1}" for j in range(len(cols))]
+    out = [read_flat(c, nm, **options) for c, nm in zip(cols, names)]
+    n = max((len(r) for r in out), default=0)
+    return [_pad_reading(r, n) for r in out]
+
+
+def _pad_reading(r, n):
+    """A reading lengthened to n cells with blanks (trimming can shorten one column of a block)."""
+    import dataclasses
+
+    from .intake import BLANK
+
+    k = n - len(r)
+    if k <= 0:
+        return r
+    return dataclasses.replace(r, values=np.concatenate([r.values, np.full(k, np.nan)]),
+                               reasons=np.concatenate([r.reasons, np.full(k, BLANK, dtype=np.uint8)]),
+                               limits=np.concatenate([r.limits, np.full(k, np.nan)]),
+                               censored=np.concatenate([r.censored, np.zeros(k, dtype=bool)]))
+
+
+def read_rows(y, x=None, *, y_name: str = "y", x_name: str = "x"):
+    """Read y and x cells into rows used and rows skipped by reason (the cell functions' common first step).
+
+    A row of x given as a one-row block beside a row of y is read as the x column.
+
+    Returns
+    -------
+    unbend.udfs.intake.RowsReading
+        Row numbers count positions in the ranges (1 is the first cell).
+    """
+    from .intake import combine
+
+    yr = read(y, y_name)
+    if x is None:
+        return combine(yr, [])
+    xs = read_block(x, x_name)
+    if xs and len(xs[0]) == 1 and len(xs) > 1 and len(yr) > 1 and len(xs) == len(yr):
+        xs = [read(x[0] if isinstance(x, (list, tuple)) else np.asarray(x).reshape(-1), x_name)]
+    return combine(yr, xs)
+
+
+def check_enough(rows, need: int = 3, y_name: str = "y", x_name: str = "x") -> None:
+    """Refuse, in words with the reasons, when fewer than ``need`` rows can be used."""
+    if rows.n_used >= need:
+        return
+    both = f"{y_name} and {x_name} are" if len(rows.columns) > 1 else f"{y_name} is"
+    why = rows.skipped_words()
+    ex = next((f" (such as {'row' if True else ''} {e[1]}{(' ' + e[2]) if e[2] else ''}: {e[3]})"
+               for e in rows.examples if e[3]), "")
+    raise CellError(f"need at least {need} rows where {both} numbers; found {rows.n_used}. Skipped: {why}{ex}. "
+                    "Select the ranges that hold the data, or fix the values shown.")
 
 
 def to_block(cells, name: str = "x", flat_as: str = "column") -> np.ndarray:
@@ -321,12 +439,12 @@ def to_block(cells, name: str = "x", flat_as: str = "column") -> np.ndarray:
             arr = arr.reshape(-1)
             arr = arr[:, None] if flat_as == "column" else arr[None, :]
         return arr
-    if kind == "rows":
-        return _block(data)
     if kind == "blank":
         return np.empty((0, data))
-    arr = _floats(_trim_cells(data))
-    return arr[:, None] if (kind == "column" or flat_as == "column") else arr[None, :]
+    cols = read_block(cells, name, flat_as)
+    if not cols:
+        return np.empty((0, 0))
+    return np.column_stack([c.values for c in cols])
 
 
 def _label(v):

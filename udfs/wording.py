@@ -34,3 +34,80 @@ SCAN_HELP = ("Ranked on the log-likelihood in the units of y (comparable across 
 def prediction_headers(level: float) -> dict:
     pct = f"{level * 100:g}%"
     return {k: v.format(pct=pct) for k, v in PREDICTION_HEADERS.items()}
+
+
+# ----------------------------------------------------------------------------- reading data (issue 9)
+#: Why a value or a row is not used: reason key (unbend.udfs.intake.REASON_KEYS) -> words users read.
+REASONS = {
+    "used": "used",
+    "blank": "blank",
+    "error value": "error value",
+    "not a number": "text that is not a number",
+    "true/false value": "true/false value",
+    "below a detection limit": "below a detection limit",
+    "above a reporting limit": "above a reporting limit",
+    "summary row": "summary row",
+    "hidden by a filter": "hidden by a filter",
+    "hidden row": "hidden row",
+    "formula without a saved value": "formula without a saved value",
+    "not a finite number": "not a finite number",
+    "date among numbers": "a date among numbers",
+    "number among dates": "a number among dates",
+    "another unit": "another unit than the column's",
+    "header": "header or units cell",
+}
+
+#: What unbend does with values below a detection limit (until they are fitted as censored values).
+LIMIT_ACTION = ("unbend leaves them out of this fit for now (it does not replace them by zero, by the limit or by "
+                "half of it); a fit that treats them as values below their limit is planned")
+
+#: What to do about a formula saved without its value.
+NO_VALUE_ACTION = ("the file was written by a program that does not calculate; open it in a spreadsheet program "
+                   "and save it, so the values are stored with the formulas")
+
+DECIMAL_NAMES = {".": "decimal point", ",": "decimal comma"}
+DECIMAL_HOW = {"values": "decided from the column's own values", "delimiter": "decided from the file's delimiter",
+               "given": "as given"}
+
+
+def _count(n: int, one: str, many: str | None = None) -> str:
+    return f"{n} {one if n == 1 else (many or one + 's')}"
+
+
+def reading_lines(rows, where: str = "row", limit_action: str = LIMIT_ACTION) -> list:
+    """Sentences about how the cells were read: rows skipped by reason with examples, text read, units, dates.
+
+    ``rows`` is an :class:`unbend.udfs.intake.RowsReading`; ``where`` names what row numbers count
+    ("row" for sheet rows, "position" for places in a cell range).
+    """
+    from .intake import LIMIT, NO_VALUE, reason_word
+
+    out = []
+    counts = rows.counts()
+    if counts:
+        parts = []
+        for code, k in counts.items():
+            ex = [e for e in rows.examples if e[0] == code]
+            shown = ", ".join(f"{where} {r}" + (f" {col}" if col else "") + (f" {v}" if v else "")
+                              for _, r, col, v in ex)
+            more = ", ..." if k > len(ex) else ""
+            parts.append(f"{reason_word(code)}: {k}" + (f" ({shown}{more})" if shown else ""))
+        out.append(f"Skipped {_count(rows.n_skipped, 'row')} of {rows.used.size}: " + "; ".join(parts) + ".")
+    if counts.get(LIMIT):
+        out.append(f"{_count(counts[LIMIT], 'row')} below a detection limit: {limit_action}.")
+    if counts.get(NO_VALUE):
+        out.append(f"{_count(counts[NO_VALUE], 'row')} with a formula saved without its value: {NO_VALUE_ACTION}.")
+    for c in rows.columns:
+        if c.from_text:
+            ex = "; ".join(f"{s} as {v:.10g}" for _, s, v in c.text_examples)
+            dec = (f"; {DECIMAL_NAMES[c.decimal]}, {DECIMAL_HOW.get(c.decimal_how, '')}" if c.decimal else "")
+            out.append(f"{c.name}: {_count(c.from_text, 'value')} read from text"
+                       + (f" (such as {ex})" if ex else "") + dec + ".")
+        if c.percent:
+            out.append(f"{c.name}: {_count(c.percent, 'value')} written with a percent sign, read as fractions "
+                       "(45% as 0.45).")
+        if c.unit:
+            out.append(f"{c.name}: unit {c.unit}, as written beside the values.")
+        if c.date_unit:
+            out.append(f"{c.name}: dates and times read as {c.label[len(c.name) + 2:-1]}.")
+    return out
