@@ -19,7 +19,7 @@ from unbend import UnbendError
 from unbend.fitting import CAUTION
 from unbend.predicting import prediction_columns
 
-from . import cells
+from . import cells, intake
 from .formula import model_formula
 from .wording import SCAN_HEADERS, prediction_headers
 
@@ -56,17 +56,43 @@ def cell_function(**arg_docs):
 # ----------------------------------------------------------------------------- inputs
 
 def _yx(y, x):
-    """y as a vector and x as a block, brought to the same number of rows."""
-    yv = cells.to_numbers(y, "y")
-    X = cells.to_block(x, "x")
-    if yv.size == 0:
+    """y as a vector and x as a block, rows used only, and the reading (reasons for the rows skipped)."""
+    rows = _read_yx(y, x)
+    return rows.y[rows.used], rows.X[rows.used], rows
+
+
+def _read_yx(y, x):
+    rows = cells.read_rows(y, x)
+    if not len(rows.columns[0]) or not np.any(rows.columns[0].reasons != intake.BLANK):
         raise UnbendError("y is empty; select the y column.")
-    if X.shape[0] == 0:
+    if x is not None and not any(np.any(c.reasons != intake.BLANK) for c in rows.columns[1:]):
         raise UnbendError("x is empty; select the x column.")
-    if X.shape[0] == 1 and yv.size > 1 and X.shape[1] == yv.size:
-        X = X.T  # a row of x beside a row of y
-    yv, X = cells.pad_rows(yv, X)
-    return yv, X
+    cells.check_enough(rows)
+    return rows
+
+
+def _y_only(y):
+    """y alone, rows used only, and its reading."""
+    rows = cells.read_rows(y)
+    return rows.y[rows.used], rows
+
+
+def _reading_header():
+    return ["read from text", "skipped, by reason"]
+
+
+def _reading_cells(rows):
+    return [sum(c.from_text for c in rows.columns), rows.skipped_words()]
+
+
+def _with_reading(pairs, rows):
+    """Label/value rows with the engine's 'rows skipped' replaced by the reading's, followed by its reasons."""
+    out = []
+    for k, v in pairs:
+        out.append((k, rows.n_skipped if k == "rows skipped" else v))
+        if k == "rows skipped":
+            out.extend(rows.table_rows())
+    return out
 
 
 def _powers(yv, X, y_power, x_power, y_start, x_start):
@@ -82,11 +108,12 @@ def _powers(yv, X, y_power, x_power, y_start, x_start):
 
 
 def _fit(y, x, y_power, x_power, y_start, x_start, level=0.95):
-    yv, X = _yx(y, x)
+    """The fitted line and the reading of its cells."""
+    yv, X, rd = _yx(y, x)
     yp, xp, ys, xs = _powers(yv, X, y_power, x_power, y_start, x_start)
     return _cache.get_or_compute(
         ("fit", yv, X, yp, xp, ys, xs, level),
-        lambda: unbend.fit(yv, X, y_power=yp, x_power=xp, y_start=ys, x_start=xs, level=level))
+        lambda: unbend.fit(yv, X, y_power=yp, x_power=xp, y_start=ys, x_start=xs, level=level)), rd
 
 
 def _level(level):
@@ -110,33 +137,33 @@ def UNBEND_POWER(y, x=None, which=None):
     if x is None or (isinstance(x, str) and not x.strip()):
         if w == "x":
             raise UnbendError('which="x" needs an x range.')
-        yv = cells.to_numbers(y, "y")
+        yv, _ = _y_only(y)
         return cells.scalar(_cache.get_or_compute(("sym", yv), lambda: unbend.symmetry_power(yv)).rung)
-    yv, X = _yx(y, x)
+    yv, X, _ = _yx(y, x)
     yp, xp = _cache.get_or_compute(("pair", yv, X, None, None, 0.0, 0.0), lambda: unbend.best_pair(yv, X))
     return cells.scalar(yp if w == "y" else xp)
 
 
 _SUGGEST_HEADER = ["power for", "estimate", "low 95%", "high 95%", "rung", "rung name", "rows used",
-                   "rows skipped", "note"]
+                   "rows skipped", "note"] + _reading_header()
 
 
-def _suggest_row(s):
-    return [s.what, s.estimate, s.low, s.high, s.rung, s.label, s.n, s.skipped, s.note]
+def _suggest_row(s, rows):
+    return [s.what, s.estimate, s.low, s.high, s.rung, s.label, s.n, rows.n_skipped, s.note] + _reading_cells(rows)
 
 
 @cell_function(y=_Y, x="Optional x range (one column or a block).")
 def UNBEND_SUGGEST(y, x=None):
     """Table: suggested power for y (and for x) with its 95% interval, the rung to use and a note."""
     if x is None or (isinstance(x, str) and not x.strip()):
-        yv = cells.to_numbers(y, "y")
+        yv, rd = _y_only(y)
         s = _cache.get_or_compute(("sym", yv), lambda: unbend.symmetry_power(yv))
-        return cells.table(_SUGGEST_HEADER, [_suggest_row(s)])
-    yv, X = _yx(y, x)
+        return cells.table(_SUGGEST_HEADER, [_suggest_row(s, rd)])
+    yv, X, rd = _yx(y, x)
     yp, xp = _cache.get_or_compute(("pair", yv, X, None, None, 0.0, 0.0), lambda: unbend.best_pair(yv, X))
     sy = _cache.get_or_compute(("sy", yv, X, xp), lambda: unbend.suggest_power(yv, X, x_power=xp))
     sx = _cache.get_or_compute(("sx", yv, X, yp), lambda: unbend.suggest_x_power(yv, X, y_power=yp))
-    rows = [_suggest_row(sy), _suggest_row(sx)]
+    rows = [_suggest_row(sy, rd), _suggest_row(sx, rd)]
     rows[0][-1] = f"(given x at power {xp:g}) " + rows[0][-1]
     rows[1][-1] = f"(given y at power {yp:g}) " + rows[1][-1]
     rows.append(["scan's best pair", "", "", "", "", f"y {unbend.rung_label(yp)}, x {unbend.rung_label(xp)}",
@@ -147,21 +174,42 @@ def UNBEND_SUGGEST(y, x=None):
 @cell_function(y=_Y, x=_X, y_start=_YS, x_start=_XS)
 def UNBEND_SCAN(y, x, y_start=None, x_start=None):
     """Table: every y rung x x rung, best first, with likelihood, curvature, spread and normality checks and a verdict."""
-    yv, X = _yx(y, x)
+    yv, X, rd = _yx(y, x)
     ys = cells.optional_number(y_start, "y_start", 0.0)
     xs = cells.optional_number(x_start, "x_start", 0.0)
     t = _cache.get_or_compute(("scan", yv, X, ys, xs), lambda: unbend.scan(yv, X, y_start=ys, x_start=xs))
-    skipped = len(t.attrs.get("skipped", ()))
-    header = [SCAN_HEADERS[c] for c in t.columns] + ["rows skipped"]
-    body = [list(r) + [skipped] for r in t.itertuples(index=False)]
+    header = [SCAN_HEADERS[c] for c in t.columns] + ["rows skipped"] + _reading_header()
+    extra = [rd.n_skipped] + _reading_cells(rd)
+    body = [list(r) + extra for r in t.itertuples(index=False)]
     return cells.table(header, body)
 
 
 @cell_function(y=_Y, x=_X, y_power=_YP, x_power=_XP, y_start=_YS, x_start=_XS)
 def UNBEND_FIT(y, x, y_power=None, x_power=None, y_start=None, x_start=None):
     """Two columns, label and value: coefficients with SE and 95% intervals, R², residual SD, rows used and skipped, checks, verdict."""
-    f = _fit(y, x, y_power, x_power, y_start, x_start)
-    return _rows_table(f.rows())
+    f, rd = _fit(y, x, y_power, x_power, y_start, x_start)
+    return _rows_table(_with_reading(f.rows(), rd))
+
+
+def _new_x(new_x, rd, k):
+    """New x values read by the same rules as the fitted x (dates from the same origin, in the same unit)."""
+    xs = rd.columns[1:]
+    opts = [dict(date_origin=c.date_origin, date_unit=c.date_unit, decimal=c.decimal or None) for c in xs]
+    if k == 1:
+        return cells.read(new_x, "new_x", header=False, **opts[0]).values
+    cols = cells.read_block(new_x, "new_x", header=False)
+    if len(cols) != k and len(cols) == 1 and len(cols[0]) == k:
+        cols = cells.read_block(new_x, "new_x", flat_as="row", header=False)
+    if len(cols) == k and any(o["date_unit"] for o in opts):
+        cols = [cells.read(c_cells, f"new_x{j + 1}", header=False, **opts[j])
+                for j, c_cells in enumerate(_columns_of(new_x, k))]
+    return np.column_stack([c.values for c in cols]) if cols else np.empty((0, k))
+
+
+def _columns_of(block, k):
+    rows = block if isinstance(block, (list, tuple)) else np.asarray(block, dtype=object).tolist()
+    rows = [r if isinstance(r, (list, tuple)) else [r] for r in rows]
+    return [[r[j] if j < len(r) else None for r in rows] for j in range(k)]
 
 
 _PRED_COLS = ["median", "mean", "low", "high", "line_low", "line_high", "outside_range", "note"]
@@ -175,9 +223,9 @@ def UNBEND_PREDICT(y, x, new_x, y_power=None, x_power=None, what=None, level=Non
     """Predicted y in original units at new x: median, mean (Duan's smearing), interval, and an outside-range flag."""
     lv = _level(level)
     w = cells.optional_text(what, "what", ("median", "mean", "low", "high"), None)
-    f = _fit(y, x, y_power, x_power, y_start, x_start, 0.95)
+    f, rd = _fit(y, x, y_power, x_power, y_start, x_start, 0.95)
     k = len(f.x_names)
-    nx = cells.to_block(new_x, "new_x") if k > 1 else cells.to_numbers(new_x, "new_x")
+    nx = _new_x(new_x, rd, k)
     if k > 1 and nx.shape[1] != k and nx.shape[0] == k and nx.shape[1] == 1:
         nx = nx.T
     if nx.shape[0] == 0:
@@ -188,24 +236,28 @@ def UNBEND_PREDICT(y, x, new_x, y_power=None, x_power=None, what=None, level=Non
         return cells.scalar(vals[0]) if vals.size == 1 else cells.column(vals)
     xcols = list(f.x_names) if k > 1 else ["new x"]
     words = prediction_headers(lv)
-    header = xcols + [words[c] for c in _PRED_COLS] + ["y power", "x power", "rows used", "rows skipped"]
+    header = (xcols + [words[c] for c in _PRED_COLS] + ["y power", "x power", "rows used", "rows skipped"]
+              + _reading_header())
     m = len(p["median"])
     columns = [np.asarray(p[c]) for c in f.x_names] + [np.asarray(p[c]) for c in _PRED_COLS[:-2]]
     columns += [np.where(p["outside_range"], "yes", "no"), np.asarray(p["note"], dtype=object)]
-    columns += [np.full(m, f.y_power), np.full(m, f.x_power), np.full(m, f.n), np.full(m, f.n_skipped)]
+    columns += [np.full(m, f.y_power), np.full(m, f.x_power), np.full(m, f.n), np.full(m, rd.n_skipped)]
+    columns += [np.full(m, v, dtype=object) for v in _reading_cells(rd)]
     return cells.table(header, list(zip(*(c.tolist() for c in columns))))
 
 
 @cell_function(y=_Y, x=_X, y_power=_YP, x_power=_XP, y_start=_YS, x_start=_XS)
 def UNBEND_RESIDUALS(y, x, y_power=None, x_power=None, y_start=None, x_start=None):
     """Table for charting: re-expressed x and y, fitted, residual, standardized residual and a flag, one row per used row."""
-    f = _fit(y, x, y_power, x_power, y_start, x_start)
+    f, rd = _fit(y, x, y_power, x_power, y_start, x_start)
     r = f.residuals
     n = f.n
+    where = rd.row_numbers[rd.used]  # positions in the ranges
     xre = [f"{nm}_re" for nm in f.x_names]
     header = (["row"] + [f"{nm} re-expressed" if len(f.x_names) > 1 else "x re-expressed" for nm in f.x_names]
               + ["y re-expressed", "fitted", "residual", "standardized residual", "flag", "y power", "x power",
-                 "rows skipped"])
+                 "rows skipped"] + _reading_header())
+    extra = _reading_cells(rd)
     body = []
     for i in range(n):
         flags = []
@@ -213,16 +265,17 @@ def UNBEND_RESIDUALS(y, x, y_power=None, x_power=None, y_start=None, x_start=Non
             flags.append("large residual")
         if r["cooks_distance"].iloc[i] > 4.0 / n:
             flags.append("influential")
-        body.append([int(r["row"].iloc[i])] + [r[c].iloc[i] for c in xre]
+        body.append([int(where[int(r["row"].iloc[i]) - 1])] + [r[c].iloc[i] for c in xre]
                     + [r["y_re"].iloc[i], r["fitted"].iloc[i], r["residual"].iloc[i], r["standardized"].iloc[i],
-                       ", ".join(flags), f.y_power, f.x_power, f.n_skipped])
+                       ", ".join(flags), f.y_power, f.x_power, rd.n_skipped] + extra)
     return cells.table(header, body)
 
 
 @cell_function(values="Range of values, one column.", groups="Range of group labels, same length as values.")
 def UNBEND_SPREAD(values, groups):
     """Table: the power that evens out spread across groups (log spread on log level), then each group's level and spread."""
-    v = cells.to_numbers(values, "values")
+    rd = cells.read_rows(values, y_name="values")
+    v = rd.y
     g = cells.to_labels(groups, "groups")
     n = max(v.size, len(g))
     v = np.concatenate([v, np.full(n - v.size, np.nan)])
@@ -231,7 +284,9 @@ def UNBEND_SPREAD(values, groups):
     rows = [["power for equal spread", s.estimate, s.low, s.high, s.note],
             ["rung to use", s.rung, "", "", s.label],
             ["rows used", s.n, "", "", ""],
-            ["rows skipped", s.skipped, "", "", ""],
+            ["rows skipped", s.skipped, "", "", "value not used or group missing"]]
+    rows += [[k, val, "", "", ""] for k, val in rd.table_rows()]
+    rows += [
             ["group", "n", "level (median)", "spread (IQR)", "used in the line"]]
     for r in s.detail.itertuples(index=False):
         rows.append([r.group, r.n, r.level, r.spread, "yes" if r.used else "no"])
@@ -241,9 +296,9 @@ def UNBEND_SPREAD(values, groups):
 @cell_function(values="Range of values, one column; must be above 0 (give a start otherwise).")
 def UNBEND_SYMMETRY(values):
     """Table: the power that makes one column's distribution most symmetric (Box-Cox), its 95% interval and rung."""
-    v = cells.to_numbers(values, "values")
+    v, rd = _y_only(values)
     s = _cache.get_or_compute(("sym", v), lambda: unbend.symmetry_power(v))
-    return _rows_table(s.rows())
+    return _rows_table(_with_reading(s.rows(), rd))
 
 
 def _column_through(engine_fn, values, power, start, missing_power):
@@ -288,15 +343,15 @@ def UNBEND_FORMULA(y, x, y_power=None, x_power=None, x_cell=None, what=None):
         ref = ref.address
     if not isinstance(ref, str):
         raise UnbendError('x_cell must be a cell reference written as text, such as "B2".')
-    f = _fit(y, x, y_power, x_power, None, None)
+    f, _ = _fit(y, x, y_power, x_power, None, None)
     return model_formula(f, ref, w)
 
 
 @cell_function(y=_Y, x=_X, y_power=_YP, x_power=_XP)
 def UNBEND_EXPLAIN(y, x, y_power=None, x_power=None):
     """Text: a few plain sentences on the re-expression, the slope in original units, the residual checks and cautions."""
-    f = _fit(y, x, y_power, x_power, None, None)
-    return f.explain()
+    f, rd = _fit(y, x, y_power, x_power, None, None)
+    return " ".join([f.explain()] + rd.lines("position"))
 
 
 __all__ = sorted(FUNCTIONS) + ["FUNCTIONS", "CATEGORY", "CAUTION"]
