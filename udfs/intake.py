@@ -413,6 +413,13 @@ def _as_float(v) -> float:
     return f
 
 
+def _as_float_or_nan(t: str) -> float:
+    try:
+        return float(t) if t.isascii() else _NAN
+    except ValueError:
+        return _NAN
+
+
 def _as_datetime(v):
     if isinstance(v, np.datetime64):
         import pandas as pd
@@ -550,16 +557,17 @@ def _to_value(p: _Parsed, dec: str) -> float:
         return _NAN
 
 
-def _decide_decimal(uniq: dict, name: str, decimal, delimiter, settle) -> tuple:
-    """(separator, how) for a column's texts; ReadingRefused when they do not settle it."""
+def _decide_decimal(votes: dict, uniq, name: str, decimal, delimiter, settle) -> tuple:
+    """(separator, how) for a column's texts; ReadingRefused when they do not settle it.
+
+    ``votes`` maps a distinct text's position in ``uniq`` to its vote ("." "," or "?").
+    """
     if decimal in (".", ","):
         return decimal, "given"
     first = {}
-    for t, p in uniq.items():
-        if p.num and p.kind in (USED, LIMIT, ABOVE):
-            v = _separator_vote(p.num)
-            if v and v not in first:
-                first[v] = t.strip()
+    for j, v in votes.items():
+        if v and v not in first:
+            first[v] = " ".join(str(uniq[j]).split())
     if "." in first and "," in first:
         raise ReadingRefused(
             f"{name}: some values are written with a decimal point (such as {first['.']!r}) and some with a decimal "
@@ -741,31 +749,128 @@ def _read_mixed(flat, name, decimal, delimiter, forced, settle, header, date_ori
                          examples=ex, text_examples=tuple(e for e in text["examples"] if reasons[e[0]] == USED))
 
 
+_GROUPED = {".": re.compile(r"\d{1,3}(?:,\d{3})+(?:\.\d*)?|\d*\.\d+"),
+            ",": re.compile(r"\d{1,3}(?:\.\d{3})+(?:,\d*)?|\d*,\d+")}
+
+
+def _simple_texts(u: np.ndarray):
+    """Vectorised first pass over distinct texts: the common shapes of numbers written as text.
+
+    Returns (shape, sign, percent, body, vote): shape 0 = not simple (parsed one by one later), 1 = digits
+    with at most one separator, 2 = digits with several separators; body is the text without sign, percent
+    and spaces; vote is "", ".", "," or "?" (see :func:`_separator_vote`) for shapes 1 and 2.
+    """
+    S = np.strings
+    s = S.strip(u)
+    neg = S.startswith(s, "-")
+    signed = neg | S.startswith(s, "+")
+    body = np.where(signed, S.strip(S.slice(s, 1, None)), s)
+    pct = S.endswith(body, "%")
+    body = np.where(pct, S.strip(S.slice(body, 0, -1)), body)
+    nd, nc = S.count(body, "."), S.count(body, ",")
+    ok = S.isdecimal(S.replace(S.replace(body, ".", ""), ",", ""))
+    shape = np.where(ok, np.where(nd + nc <= 1, 1, 2), 0)
+    L = S.str_len(body)
+    at = np.maximum(S.find(body, "."), S.find(body, ","))
+    before, after = at, L - at - 1
+    amb = (shape == 1) & (nd + nc == 1) & (after == 3) & (before >= 1) & (before <= 3) & ~S.startswith(body, "0")
+    vote = np.where((shape == 1) & (nd + nc == 1), np.where(amb, "?", np.where(nd == 1, ".", ",")), "")
+    multi = np.flatnonzero(shape == 2)
+    if multi.size:  # several separators: the last one is the decimal one, or all are thousands separators
+        b = body[multi]
+        both = (nd[multi] > 0) & (nc[multi] > 0)
+        last_dot = S.rfind(b, ".") > S.rfind(b, ",")
+        v = np.where(both, np.where(last_dot, ".", ","), np.where(nd[multi] > 0, ",", "."))
+        ok = np.fromiter(map(bool, map(_GROUPED["."].fullmatch, b.tolist())), dtype=bool, count=b.size)
+        okc = np.fromiter(map(bool, map(_GROUPED[","].fullmatch, b.tolist())), dtype=bool, count=b.size)
+        valid = np.where(v == ".", ok, okc)
+        shape[multi[~valid]] = 0  # not a number either way (a date such as 01.03.2024): parsed one by one
+        vote[multi[valid]] = v[valid]
+    return shape, np.where(neg, -1.0, 1.0), pct, body, vote
+
+
+def _simple_values(shape, sign, pct, body, dec) -> np.ndarray:
+    """Values of the simple shapes under decimal separator ``dec`` (NaN where the text is not valid so)."""
+    S = np.strings
+    out = np.full(shape.shape[0], np.nan)
+    one = np.flatnonzero(shape == 1)
+    if one.size:
+        b = body[one]
+        thou = "," if dec == "." else "."
+        has_t = S.count(b, thou) > 0
+        L = S.str_len(b)
+        at = S.find(b, thou)
+        good_t = (at >= 1) & (at <= 3) & (L - at - 1 == 3) & ~S.startswith(b, "0")
+        if not dec:
+            has_t = (S.count(b, ".") + S.count(b, ",")) > 0
+            good_t = np.zeros(one.size, dtype=bool)
+        txt = np.where(has_t, S.replace(b, thou if dec else ".", ""), S.replace(b, dec or ".", "."))
+        valid = ~has_t | good_t
+        txt = np.where(valid & (S.str_len(txt) > 0) & (txt != "."), txt, "nan")
+        txt = np.where(S.startswith(txt, "."), S.add("0", txt), txt)
+        try:
+            out[one] = txt.astype(float)
+        except ValueError:  # digits of other scripts: one by one
+            out[one] = [_as_float_or_nan(t) for t in txt.tolist()]
+    two = np.flatnonzero(shape == 2)
+    if two.size and dec:
+        b = body[two]
+        ok = np.fromiter(map(bool, map(_GROUPED[dec].fullmatch, b.tolist())), dtype=bool, count=b.size)
+        txt = S.replace(S.replace(b, "," if dec == "." else ".", ""), dec, ".")
+        txt = np.where(ok, np.where(S.endswith(txt, "."), S.add(txt, "0"), txt), "nan")
+        out[two] = txt.astype(float)
+    return out * sign / np.where(pct, 100.0, 1.0)
+
+
 def _read_texts(flat, kinds, name, decimal, delimiter, settle, header, values, reasons, limits, censored) -> dict:
-    """Read the text cells (in place); returns the unit, decimal decision, percent count, dates and examples."""
+    """Read the text cells (in place); returns the unit, decimal decision, percent count, dates and examples.
+
+    Distinct texts are read once: the common shapes of numbers by vectorised string functions, the rest
+    (units, currency, limits, dates, words) one by one.
+    """
+    import pandas as pd
+
     out = {"unit": "", "decimal": "", "how": "", "percent": 0, "dates": {}, "examples": []}
     tidx = np.flatnonzero(kinds == 2)
     if not tidx.size:
         return out
-    texts = [flat[i] for i in tidx.tolist()]
-    counts = Counter(texts)
-    uniq = {t: _parse_text(t) for t in counts}
-    dec, how = _decide_decimal(uniq, name, decimal, delimiter, settle)
-    slash = [p.value for p in uniq.values() if p.kind == _DATE and p.num == "/"]
-    order = _slash_order(slash, name) if slash else ""
-    units = Counter()
-    final = {}  # text -> (code, value, limit)
-    for t, p in uniq.items():
+    texts = np.fromiter((flat[i] for i in tidx.tolist()), dtype=object, count=tidx.size)
+    codes, uniq = pd.factorize(texts)
+    counts = np.bincount(codes, minlength=len(uniq))
+    shape, sign, pct, body, vote = _simple_texts(uniq.astype(str))
+    slow = {int(j): _parse_text(uniq[j]) for j in np.flatnonzero(shape == 0).tolist()}
+    votes = {t: _separator_vote(p.num) for t, p in slow.items() if p.num and p.kind in (USED, LIMIT, ABOVE)}
+    for v in (".", ",", "?"):  # the first distinct text of each kind is all the decision needs
+        hit = np.flatnonzero(vote == v)
+        if hit.size:
+            votes.setdefault(int(hit[0]), v)
+    dec, how = _decide_decimal(votes, uniq, name, decimal, delimiter, settle)
+    m = len(uniq)
+    code_u = np.full(m, TEXT, dtype=np.int16)
+    val_u = np.full(m, np.nan)
+    lim_u = np.full(m, np.nan)
+    simple = shape > 0
+    if simple.any():
+        v = _simple_values(shape, sign, pct, body, dec)
+        code_u[simple] = np.where(np.isnan(v[simple]), TEXT, USED)
+        val_u[simple] = v[simple]
+    unit_u = {}
+    order = ""
+    slash = [p.value for p in slow.values() if p.kind == _DATE and p.num == "/"]
+    if slash:
+        order = _slash_order(slash, name)
+    dates_u = {}
+    for j, p in slow.items():
         if p.kind in (USED, LIMIT, ABOVE) and p.num:
-            v = _to_value(p, dec if _separator_vote(p.num) else "")
+            v = _to_value(p, dec if votes.get(j) else "")
             if math.isnan(v):
-                final[t] = (TEXT, _NAN, _NAN)
-            elif p.kind == USED:
-                final[t] = (USED, v, _NAN)
+                continue
+            if p.kind == USED:
+                code_u[j], val_u[j] = USED, v
                 if p.unit:
-                    units[p.unit] += counts[t]
+                    unit_u[j] = p.unit
             else:
-                final[t] = (p.kind, _NAN, v)
+                code_u[j], lim_u[j] = p.kind, v
         elif p.kind == _DATE:
             d = p.value
             if p.num == "/":
@@ -776,49 +881,47 @@ def _read_texts(flat, kinds, name, decimal, delimiter, settle, header, values, r
                     d = _dt.datetime(y, b, a, hh, mi, ss) if order else None
                 except ValueError:
                     d = None
-            final[t] = (_DATE, d, _NAN) if d is not None else (TEXT, _NAN, _NAN)
+            if d is not None:
+                code_u[j], dates_u[j] = _DATE, d
         elif p.kind == _TIME:
-            final[t] = (_TIME, p.value, _NAN)
+            code_u[j], dates_u[j] = _TIME, ("time", p.value)
         else:
-            final[t] = (p.kind, _NAN, _NAN)
-    unit = units.most_common(1)[0][0] if units else ""
-    if unit:
-        folded = unit.casefold()
-        for t, p in uniq.items():
-            if final[t][0] == USED and p.unit and p.unit.casefold() != folded:
-                final[t] = (OTHER_UNIT, _NAN, _NAN)
-    code = np.fromiter((final[t][0] for t in texts), dtype=np.int16, count=len(texts))
-    val = np.fromiter((final[t][1] if final[t][0] == USED else _NAN for t in texts), dtype=float, count=len(texts))
-    lim = np.fromiter((final[t][2] for t in texts), dtype=float, count=len(texts))
+            code_u[j] = p.kind
+    unit = ""
+    if unit_u:
+        tally = Counter()
+        for j, u_ in unit_u.items():
+            tally[u_] += int(counts[j])
+        unit = tally.most_common(1)[0][0]
+        for j, u_ in unit_u.items():
+            if u_.casefold() != unit.casefold():
+                code_u[j] = OTHER_UNIT
+    code = code_u[codes]
     if header:  # a header cell on top of the range, and a units cell under it
         first = int(tidx[0])
-        if not (kinds[:first] != 0).any() and code[0] == TEXT and not _MISSING_WORDS.match(texts[0].strip()) \
-                and len(tidx) < len(flat) - first + 1 and ((kinds[first + 1:] == 1).any() or (code[1:] == USED).any()):
+        t0 = str(texts[0]).strip()
+        if not (kinds[:first] != 0).any() and code[0] == TEXT and not _MISSING_WORDS.match(t0) \
+                and ((kinds[first + 1:] == 1).any() or (code[1:] == USED).any()):
             code[0] = HEADER
             if len(tidx) > 1 and tidx[1] == first + 1 and code[1] == TEXT and looks_like_unit(texts[1]):
                 code[1] = HEADER
     is_num = code == USED
-    values[tidx[is_num]] = val[is_num]
+    values[tidx[is_num]] = val_u[codes[is_num]]
     is_lim = code == LIMIT
-    limits[tidx[is_lim]] = lim[is_lim]
+    limits[tidx[is_lim]] = lim_u[codes[is_lim]]
     censored[tidx[is_lim]] = True
-    plain = (code < 100) & ~is_num
+    plain = code < 100
     reasons[tidx[plain]] = code[plain].astype(np.uint8)
-    reasons[tidx[is_num]] = USED
     dates = {}
     for j in np.flatnonzero(code >= 100).tolist():
-        t = texts[j]
-        dates[int(tidx[j])] = ("time", final[t][1]) if final[t][0] == _TIME else final[t][1]
-    out.update(unit=unit, decimal=dec, how=how, dates=dates,
-               percent=int(sum(counts[t] for t, p in uniq.items() if p.percent and final[t][0] == USED)))
+        dates[int(tidx[j])] = dates_u[int(codes[j])]
+    pct_used = pct & (code_u == USED)
+    fancy_u = (code_u == USED) & ((vote != "") | pct | ~simple)
     shown_ex = []
-    for j in np.flatnonzero(is_num).tolist():
-        t = texts[j]
-        if t.strip() != repr(final[t][1]) and not t.strip().lstrip("-").isdigit():
-            shown_ex.append((int(tidx[j]), _shown(t), float(final[t][1])))
-            if len(shown_ex) >= _EXAMPLES:
-                break
-    out["examples"] = shown_ex
+    for j in np.flatnonzero(fancy_u[codes] & is_num)[:_EXAMPLES].tolist():
+        shown_ex.append((int(tidx[j]), _shown(texts[j]), float(val_u[codes[j]])))
+    out.update(unit=unit, decimal=dec, how=how, dates=dates, examples=shown_ex,
+               percent=int(counts[pct_used].sum()))
     return out
 
 
