@@ -369,7 +369,7 @@ def test_report_one_x_sheets_charts_cautions(request, run, survey):
     # the numbers in the Residuals sheet are the numbers in the file (known truth), row for row
     res = sheet_table(wb["Residuals"], header_row=2)
     rows = [int(v) for v in res["data row"]]
-    assert rows == list(range(1, len(survey["load"]) + 1))
+    assert rows == list(range(2, len(survey["load"]) + 2))  # the file's own rows: the header is row 1
     np.testing.assert_array_equal(np.array(res["load"], float), np.array(survey["load"], float))
     np.testing.assert_array_equal(np.array(res["discharge"], float), np.array(survey["discharge"], float))
 

@@ -102,8 +102,42 @@ def _print_summary(a):
     print(p[show].to_string(index=False, float_format=lambda v: f"{v:.4g}"))
 
 
+# ----------------------------------------------------------------------------- reading the data (issue 9)
+def read_report_data(args, data: str):
+    """The command's reading step: the file read by the shared rules, and a frame of the rows used.
+
+    Returns (reading, frame, y label, x labels, group label): the frame's columns are the labels (header text
+    with its unit or date origin), so every table, chart and sentence of the report shows them.
+    """
+    from .files import read_data
+
+    reading = read_data(data, args.y, args.x, sheet=args.sheet, header_row=args.header_row, decimal=args.decimal,
+                        hidden=args.hidden or "auto", groups=args.groups)
+    labels = [reading.y_label, *reading.x_labels]
+    seen = set()
+    for i, (lab, letter) in enumerate(zip(labels, reading.letters)):
+        if lab in seen:
+            labels[i] = f"{lab} ({letter})"
+        seen.add(labels[i])
+    df = reading.frame()
+    names = labels + ([reading.groups_name] if reading.groups_name else [])
+    df.columns = names
+    return reading, df, labels[0], labels[1:], (reading.groups_name if args.groups else None)
+
+
+def add_reading_options(r) -> None:
+    """The report's options about reading the data file."""
+    r.add_argument("--header-row", type=int, metavar="N",
+                   help="the row number of the header (default: found under titles, notes and blank rows)")
+    r.add_argument("--decimal", choices=[",", "."],
+                   help="decimal separator of numbers written as text, when a column's own values do not settle it")
+    r.add_argument("--hidden", choices=["use", "skip"],
+                   help="hidden rows: use or skip them all (default: rows hidden by a filter are skipped, rows "
+                        "hidden by hand are used)")
+
+
+# ----------------------------------------------------------------------------- report
 def cmd_report(args) -> int:
-    from .readers import ReadError, pick_columns, read_table
     from .report import analyse, write_plots, write_report
 
     prog = Progress(args.quiet)
@@ -114,12 +148,10 @@ def cmd_report(args) -> int:
     if os.path.exists(data) and same_file(out, data):
         return _fail("--out names the input file; unbend never writes over its input. Choose another name.")
     prog.step(f"reading {os.path.basename(data)}")
-    df = read_table(data, args.sheet)
-    ycol = pick_columns(df, [args.y], "--y")[0]
-    xcols = pick_columns(df, args.x, "--x")
-    gcol = pick_columns(df, [args.groups], "--groups")[0] if args.groups else None
+    reading, df, ycol, xcols, gcol = read_report_data(args, data)
     prog.step("choosing powers and scanning the rungs")
-    a = analyse(df, ycol, xcols, gcol, source=f"{os.path.basename(data)}" + (f", sheet {args.sheet}" if args.sheet else ""))
+    a = analyse(df, ycol, xcols, gcol, source=reading.source)
+    a.reading = reading
     prog.step("writing the report workbook")
     rep = write_report(a, out)
     prog.step("drawing the plots")
@@ -140,13 +172,15 @@ def build_parser() -> argparse.ArgumentParser:
     d.add_argument("--out", help="folder to create (default: unbend-demo, or unbend-demo-2 ... if taken)")
     d.add_argument("--quiet", action="store_true", help="no progress messages")
     r = sub.add_parser("report", help="write a report workbook and plots for y against x from a .xlsx or .csv file")
-    r.add_argument("data", help="the .xlsx or .csv file with a header row")
-    r.add_argument("--y", required=True, help="the y column (header text)")
-    r.add_argument("--x", required=True, action="append", help="an x column; repeat for more than one")
-    r.add_argument("--sheet", help="sheet name (workbooks only; default the first sheet)")
+    r.add_argument("data", help="the data file (.xlsx, .xlsm, .xls, .xlsb, .ods, .csv, .tsv or .txt) with a header row")
+    r.add_argument("--y", required=True, help="the y column: header text or column letter (such as E)")
+    r.add_argument("--x", required=True, action="append",
+                   help="an x column (header text or letter); repeat for more than one")
+    r.add_argument("--sheet", help="sheet name (workbooks only; default: the sheet that holds the named columns)")
     r.add_argument("--groups", help="a group column, for the spread-against-level power")
     r.add_argument("--out", help="report file to write (.xlsx); default DATA_unbend_report.xlsx")
     r.add_argument("--quiet", action="store_true", help="no progress messages")
+    add_reading_options(r)
     return p
 
 

@@ -85,16 +85,6 @@ def _reading_cells(rows):
     return [sum(c.from_text for c in rows.columns), rows.skipped_words()]
 
 
-def _with_reading(pairs, rows):
-    """Label/value rows with the engine's 'rows skipped' replaced by the reading's, followed by its reasons."""
-    out = []
-    for k, v in pairs:
-        out.append((k, rows.n_skipped if k == "rows skipped" else v))
-        if k == "rows skipped":
-            out.extend(rows.table_rows())
-    return out
-
-
 def _powers(yv, X, y_power, x_power, y_start, x_start):
     yp = cells.optional_number(y_power, "y_power")
     xp = cells.optional_number(x_power, "x_power")
@@ -188,7 +178,7 @@ def UNBEND_SCAN(y, x, y_start=None, x_start=None):
 def UNBEND_FIT(y, x, y_power=None, x_power=None, y_start=None, x_start=None):
     """Two columns, label and value: coefficients with SE and 95% intervals, R², residual SD, rows used and skipped, checks, verdict."""
     f, rd = _fit(y, x, y_power, x_power, y_start, x_start)
-    return _rows_table(_with_reading(f.rows(), rd))
+    return _rows_table(rd.into_rows(f.rows()))
 
 
 def _new_x(new_x, rd, k):
@@ -298,7 +288,7 @@ def UNBEND_SYMMETRY(values):
     """Table: the power that makes one column's distribution most symmetric (Box-Cox), its 95% interval and rung."""
     v, rd = _y_only(values)
     s = _cache.get_or_compute(("sym", v), lambda: unbend.symmetry_power(v))
-    return _rows_table(_with_reading(s.rows(), rd))
+    return _rows_table(rd.into_rows(s.rows()))
 
 
 def _column_through(engine_fn, values, power, start, missing_power):

@@ -352,6 +352,16 @@ class RowsReading:
             out.append((f"skipped: {reason_word(k)}", n))
         return out
 
+    def into_rows(self, pairs) -> list:
+        """Label/value rows (an engine result's ``rows()``) with its "rows skipped" replaced by this reading's
+        count, followed by the values read from text and the rows skipped by reason."""
+        out = []
+        for k, v in pairs:
+            out.append((k, self.n_skipped if k == "rows skipped" else v))
+            if k == "rows skipped":
+                out.extend(self.table_rows())
+        return out
+
     def lines(self, where: str = "row") -> list:
         """Sentences for messages and summaries: skipped rows by reason with examples, text read, units, dates."""
         from .wording import LIMIT_ACTION, reading_lines

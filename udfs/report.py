@@ -39,6 +39,9 @@ class Analysis:
     spread: unbend.PowerSuggestion | None = None
     invented: bool = False
     notes: list = field(default_factory=list)
+    #: How the data file was read (unbend.udfs.files.DataReading), when the data came from a file: its rows
+    #: skipped by reason, values read from text, units and dates replace the engine's generic skipped list.
+    reading: object = None
 
 
 def _numbers(series) -> np.ndarray:
@@ -107,7 +110,12 @@ def summary_lines(a: Analysis) -> list:
            + (" (row numbers count data rows: 1 is the first row under the header)." if f.skipped else ".")]
     if a.invented:
         out.append("These demo numbers are invented by unbend's own script; they are not measurements.")
-    if f.skipped:
+    if a.reading is not None:  # issue 9: the file's own reading says which rows were skipped and why
+        rd = a.reading.rows
+        out[1] = (f"y = {a.y_name}; x = {', '.join(a.x_names)}. Rows used: {rd.n_used}; rows skipped: "
+                  f"{rd.n_skipped} (row numbers are the rows of {a.reading.source}).")
+        out.extend(a.reading.lines())
+    elif f.skipped:
         out.append("Skipped: " + "; ".join(f"row {r}: {why}" for r, why in f.skipped[:5])
                    + ("; ..." if len(f.skipped) > 5 else "") + ".")
     names = {"y": a.y_name, "x": ", ".join(a.x_names)}
@@ -205,7 +213,8 @@ def build_report_workbook(a: Analysis) -> Workbook:
     # fit
     ws3 = wb.create_sheet("Fit")
     put(ws3, 1, 1, f"The line: {f.explain().split('. ', 1)[0][len('A straight line of '):]}").font = TITLE_FONT
-    write_rows(ws3, 3, 1, ["item", "value"], f.rows(), number_format=GENERAL,
+    fit_rows = f.rows() if a.reading is None else a.reading.rows.into_rows(f.rows())  # issue 9: reasons
+    write_rows(ws3, 3, 1, ["item", "value"], fit_rows, number_format=GENERAL,
                row_formats={k: P_FORMAT for k, _ in f.rows() if k.endswith(": p") or " p (" in k})
     for row in ws3.iter_rows(min_row=4, min_col=1, max_col=2):
         for c in row:
@@ -227,6 +236,8 @@ def build_report_workbook(a: Analysis) -> Workbook:
             fl.append("influential")
         flags.append(", ".join(fl))
     res["flag"] = flags
+    if a.reading is not None:  # issue 9: rows of the sheet or file, not positions among the rows used
+        res["row"] = a.reading.row_numbers[res["row"].to_numpy(dtype=int) - 1]
     cols = ["row", "y"] + list(f.x_names) + ["y_re"] + [f"{nm}_re" for nm in f.x_names] + \
            ["fitted", "residual", "standardized", "studentized", "leverage", "cooks_distance", "flag"]
     nice = {"row": "data row", "y": a.y_name, "y_re": f"{a.y_name} re-expressed", "fitted": "fitted (re-expressed)",
@@ -235,7 +246,9 @@ def build_report_workbook(a: Analysis) -> Workbook:
     for nm in f.x_names:
         nice[nm] = nm
         nice[f"{nm}_re"] = f"{nm} re-expressed"
-    _wrapped(ws4, 1, "One row per data row used (data row 1 = the first row under the header). Standardized "
+    _wrapped(ws4, 1, ("One row per data row used (data row = the row in the data file). " if a.reading is not None
+                      else "One row per data row used (data row 1 = the first row under the header). ") +
+             "Standardized "
                      "residuals beyond \u00b12 are flagged 'large residual'; a Cook's distance above 4/n (leverage "
                      "times residual: how much the row moves the line) is flagged 'influential'.", len(cols), NOTE_FONT,
              per_line=150)
