@@ -76,7 +76,7 @@ import numpy as np
 from unbend import UnbendError
 
 __all__ = [
-    "ColumnReading", "RowsReading", "ReadingRefused", "read_column", "read_flat", "combine",
+    "ColumnReading", "RowsReading", "ReadingRefused", "DecimalLeftOpen", "read_column", "read_flat", "combine",
     "is_summary_label", "looks_like_unit", "reason_word",
     "USED", "BLANK", "ERROR", "TEXT", "BOOL", "LIMIT", "ABOVE", "SUMMARY", "FILTERED", "HIDDEN",
     "NO_VALUE", "NOT_FINITE", "DATE_AMONG_NUMBERS", "NUMBER_AMONG_DATES", "OTHER_UNIT", "HEADER",
@@ -128,6 +128,11 @@ def reason_word(code: int) -> str:
 
 class ReadingRefused(UnbendError):
     """A column cannot be read without a decision the user must make; the message says which."""
+
+
+class DecimalLeftOpen(ReadingRefused):
+    """Nothing in a column settles its decimal separator (every text such as 1.234); another column of the same
+    file may (see :func:`unbend.udfs.files.read_data`)."""
 
 
 # ----------------------------------------------------------------------------- words and patterns
@@ -574,6 +579,8 @@ def _decide_decimal(votes: dict, uniq, name: str, decimal, delimiter, settle) ->
     """
     if decimal in (".", ","):
         return decimal, "given"
+    if decimal in ("file.", "file,"):  # settled by the other columns of the same file
+        return decimal[-1], "file"
     first = {}
     for j, v in votes.items():
         if v and v not in first:
@@ -590,7 +597,7 @@ def _decide_decimal(votes: dict, uniq, name: str, decimal, delimiter, settle) ->
             return ",", "delimiter"
         if delimiter == ",":
             return ".", "delimiter"
-        raise ReadingRefused(
+        raise DecimalLeftOpen(
             f"{name}: values such as {first['?']!r} could have a decimal point or a decimal comma (a thousands "
             "separator), and nothing in the column settles which; "
             + (settle or "type these cells as numbers, or write one with both separators (such as 1,234.0)") + ".")

@@ -67,7 +67,7 @@ NO_VALUE_ACTION = ("the file was written by a program that does not calculate; o
 
 DECIMAL_NAMES = {".": "decimal point", ",": "decimal comma"}
 DECIMAL_HOW = {"values": "decided from the column's own values", "delimiter": "decided from the file's delimiter",
-               "given": "as given"}
+               "given": "as given", "file": "decided from the other columns of the file"}
 
 
 def _count(n: int, one: str, many: str | None = None) -> str:

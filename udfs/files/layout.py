@@ -365,18 +365,8 @@ def read_data(path, y: str, x=(), *, sheet: str | None = None, header_row: int |
     row_numbers = np.arange(start + 1, start + n + 1)
     rr, shown, hidden_used, hidden_notes = _row_reasons(grid, start, end, cols, hidden, table)
     notes += hidden_notes
-    readings = []
     y_names = _unique_names([headers[j] or col_letter(j) for j in cols], cols)
-    for k, (j, nm) in enumerate(zip(cols[:1 + len(xs)], y_names)):
-        cells = [(r[j] if j < len(r) else None) for r in rows_[start:end]]
-        cells = [None if (isinstance(v, str) and v == "") else v for v in cells]
-        forced = {r - start: code for (r, c), code in grid.forced.items() if c == j and start <= r < end}
-        rd = intake.read_flat(cells, nm, decimal=decimal, delimiter=grid.delimiter, forced=forced or None,
-                              settle=SETTLE_DECIMAL, header=False)
-        if j in units and not rd.unit and not rd.date_unit:
-            rd = dataclasses.replace(rd, unit=units[j])
-        rd = _with_formula_examples(rd, grid, start, j)
-        readings.append(_pad(rd, n))
+    readings = _read_columns(grid, cols[:1 + len(xs)], y_names, start, end, decimal, units)
     rows = intake.combine(readings[0], readings[1:], row_reasons=rr, row_numbers=row_numbers, row_shown=shown)
     glabels = None
     if groups:
@@ -390,6 +380,39 @@ def read_data(path, y: str, x=(), *, sheet: str | None = None, header_row: int |
     if rows.n_used < need:
         raise ReadError(_too_few(reading, need))
     return reading
+
+
+def _read_columns(grid, cols, names, start, end, decimal, units) -> list:
+    """Each chosen column read by the shared rules; a column whose own texts leave the decimal separator open
+    takes the one the file's other columns settled (when they agree), else it is refused."""
+    n = max(end - start, 0)
+    rows_ = grid.rows
+    cells_of, readings, open_ = {}, {}, {}
+    for j, nm in zip(cols, names):
+        cells = [(r[j] if j < len(r) else None) for r in rows_[start:end]]
+        cells_of[j] = [None if (isinstance(v, str) and v == "") else v for v in cells]
+        try:
+            readings[j] = _read_one(grid, cells_of[j], j, nm, start, decimal, units)
+        except intake.DecimalLeftOpen as e:
+            open_[j] = e
+    if open_:
+        settled = {r.decimal for r in readings.values() if r.decimal_how == "values"}
+        for j, e in open_.items():
+            if len(settled) != 1:
+                raise e
+            nm = names[cols.index(j)]
+            readings[j] = _read_one(grid, cells_of[j], j, nm, start, "file" + settled.pop(), units)
+            settled = {readings[j].decimal}
+    return [_pad(readings[j], n) for j in cols]
+
+
+def _read_one(grid, cells, j, nm, start, decimal, units):
+    forced = {r - start: code for (r, c), code in grid.forced.items() if c == j and start <= r < start + len(cells)}
+    rd = intake.read_flat(cells, nm, decimal=decimal, delimiter=grid.delimiter, forced=forced or None,
+                          settle=SETTLE_DECIMAL, header=False)
+    if j in units and not rd.unit and not rd.date_unit:
+        rd = dataclasses.replace(rd, unit=units[j])
+    return _with_formula_examples(rd, grid, start, j)
 
 
 def _refuse_same(cols, specs, headers, nx) -> None:
@@ -426,11 +449,12 @@ def _label(v):
 
 
 def _data_end(rows, start, cols, grid) -> int:
-    """One past the last row with a value in the chosen columns (notes further down are not data)."""
+    """One past the last row with a value in the chosen columns: blank rows and notes (plain text) further
+    down are not data, while a summary label is (so it is counted as a summary row)."""
     end = len(rows)
     while end > start:
         r = rows[end - 1]
-        if any(j < len(r) and not is_blank(r[j]) for j in cols) or any(
+        if any(j < len(r) and (_is_value(r[j]) or intake.is_summary_label(r[j])) for j in cols) or any(
                 (end - 1, j) in grid.forced for j in cols):
             break
         end -= 1
@@ -500,7 +524,7 @@ def _with_formula_examples(rd, grid, start, j):
     ex = []
     for code, i, shown in rd.examples:
         f = grid.formulas.get((start + i, j))
-        ex.append((code, i, f"{shown} ({f})" if f and shown in ("blank", "") else (f"{f!r}" if f else shown)))
+        ex.append((code, i, repr(f) if f else shown))
     return dataclasses.replace(rd, examples=tuple(ex))
 
 
@@ -518,7 +542,11 @@ def _too_few(reading: DataReading, need: int) -> str:
     rows = reading.rows
     names = " and ".join([reading.y_name] + list(reading.x_names))
     ex = next((f" (such as row {r}{(' ' + c) if c else ''}: {v})" for _, r, c, v in rows.examples if v), "")
+    from ..wording import LIMIT_ACTION, NO_VALUE_ACTION
     span = f" (rows {rows.row_numbers[0]}-{rows.row_numbers[-1]})" if rows.used.size else ""
+    counts = rows.counts()
+    action = (f" Formulas without saved values: {NO_VALUE_ACTION}." if counts.get(intake.NO_VALUE) else "") + (
+        f" Values below a detection limit: {LIMIT_ACTION}." if counts.get(intake.LIMIT) else "")
     return (f"need at least {need} rows where {names} are numbers; found {rows.n_used} in {reading.source}"
             f"{span}. Skipped: {rows.skipped_words()}"
-            f"{ex}. Check the column names (--y, --x), --sheet and --header-row.")
+            f"{ex}.{action} Check the column names (--y, --x), --sheet and --header-row.")
