@@ -154,8 +154,9 @@ def UNBEND_SUGGEST(y, x=None):
     sy = _cache.get_or_compute(("sy", yv, X, xp), lambda: unbend.suggest_power(yv, X, x_power=xp))
     sx = _cache.get_or_compute(("sx", yv, X, yp), lambda: unbend.suggest_x_power(yv, X, y_power=yp))
     rows = [_suggest_row(sy, rd), _suggest_row(sx, rd)]
-    rows[0][-1] = f"(given x at power {xp:g}) " + rows[0][-1]
-    rows[1][-1] = f"(given y at power {yp:g}) " + rows[1][-1]
+    note = _SUGGEST_HEADER.index("note")
+    rows[0][note] = f"(given x at power {xp:g}) " + rows[0][note]
+    rows[1][note] = f"(given y at power {yp:g}) " + rows[1][note]
     rows.append(["scan's best pair", "", "", "", "", f"y {unbend.rung_label(yp)}, x {unbend.rung_label(xp)}",
                  "", "", "the pair UNBEND_FIT and UNBEND_PREDICT use when the powers are left blank"])
     return cells.table(_SUGGEST_HEADER, rows)

@@ -165,7 +165,8 @@ _SUMMARY_WORDS = (
 )
 _SUMMARY_RE = re.compile(
     r"^(?:(?:grand|sub)\s*)?(?:" + "|".join(sorted(map(re.escape, _SUMMARY_WORDS), key=len, reverse=True))
-    + r")(?:\s*[:=])?(?:\s*(?:\(.*\)|\[.*\]|(?:of|der|des|de|du|di|del|van|aller)\b.*|\d[\d\s/.\-]*|all))?\s*[:.]?$",
+    + r")(?:\s*[:=])?(?:\s*(?:\(.*\)|\[.*\])|\s+(?:(?:of|der|des|de|du|di|del|van|aller)\b.*|\d[\d\s/.\-]*|all))?"
+    r"\s*[:.]?$",
     re.IGNORECASE)
 
 _ND_RE = re.compile(
@@ -178,7 +179,7 @@ _NUMBER_RE = re.compile(
     r"^(?P<lt>(?:<=?|≤|&lt;|>=?|≥|&gt;)\s*)?(?P<s1>[-+]\s*)?(?P<cur>" + _CURRENCY + r"\s*)?(?P<s2>[-+]\s*)?"
     r"(?P<num>\d(?:[\d.,'’ ]*\d)?|[.,]\d+|\d[.,])"
     r"(?P<exp>[eE][-+]?\d{1,3})?\s*(?P<tail>\S.*?)?$")
-_UNIT_RE = re.compile(r"^(?=.{1,24}$)(?=.*[^\W\d_]|.*[°µ%‰Ω$€£¥])[^\d\s<>=#\"+\-:;,.][^<>=#\"]*$")
+_UNIT_RE = re.compile(r"^(?=.{1,24}$)(?!.*\s[\d.,])(?=.*[^\W\d_]|.*[°µ%‰Ω$€£¥])[^\d\s<>=#\"+\-:;,.][^<>=#\"]*$")
 _ISO_RE = re.compile(r"^(\d{4})-(\d{1,2})-(\d{1,2})(?:[ T](\d{1,2}):(\d{2})(?::(\d{2})(?:[.,](\d+))?)?)?$")
 _DMY_RE = re.compile(r"^(\d{1,2})([./])(\d{1,2})\2(\d{4})(?:,?\s+(\d{1,2}):(\d{2})(?::(\d{2}))?)?$")
 _TIME_RE = re.compile(r"^(\d{1,2}):(\d{2})(?::(\d{2})(?:[.,](\d+))?)?$")
@@ -881,6 +882,8 @@ def _read_texts(flat, kinds, name, decimal, delimiter, settle, header, values, r
         if p.kind in (USED, LIMIT, ABOVE) and p.num:
             v = _to_value(p, dec if votes.get(j) else "")
             if math.isnan(v):
+                if p.kind != USED:  # "<0,5" in a column of decimal points: still below a limit, its value unread
+                    code_u[j] = p.kind
                 continue
             if p.kind == USED:
                 code_u[j], val_u[j] = USED, v
