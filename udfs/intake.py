@@ -936,7 +936,9 @@ def _read_texts(flat, kinds, name, decimal, delimiter, settle, header, values, r
     for j in np.flatnonzero(code >= 100).tolist():
         dates[int(tidx[j])] = dates_u[int(codes[j])]
     pct_used = pct & (code_u == USED)
-    fancy_u = (code_u == USED) & ((vote != "") | pct | ~simple)
+    # examples worth showing: texts that are not plainly the number they hold (separators, units, signs, percent)
+    fancy_u = (code_u == USED) & (~simple | pct | (vote == ",") | (vote == "?") | (shape == 2)
+                                  | (np.strings.str_len(body) != np.strings.str_len(uniq.astype(str))))
     shown_ex = []
     for j in np.flatnonzero(fancy_u[codes] & is_num)[:_EXAMPLES].tolist():
         shown_ex.append((int(tidx[j]), _shown(texts[j]), float(val_u[codes[j]])))

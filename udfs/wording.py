@@ -100,7 +100,9 @@ def reading_lines(rows, where: str = "row", limit_action: str = LIMIT_ACTION) ->
     for c in rows.columns:
         if c.from_text:
             ex = "; ".join(f"{s} as {v:.10g}" for _, s, v in c.text_examples)
-            dec = (f"; {DECIMAL_NAMES[c.decimal]}, {DECIMAL_HOW.get(c.decimal_how, '')}" if c.decimal else "")
+            plain = c.decimal == "." and c.decimal_how == "values"  # nothing to say about plain decimal points
+            dec = (f"; {DECIMAL_NAMES[c.decimal]}, {DECIMAL_HOW.get(c.decimal_how, '')}" if c.decimal and not plain
+                   else "")
             out.append(f"{c.name}: {_count(c.from_text, 'value')} read from text"
                        + (f" (such as {ex})" if ex else "") + dec + ".")
         if c.percent:
