@@ -247,10 +247,13 @@ def _choose_sheet(book, sheet, specs):
         raise ReadError(f"{book.base} has no sheets.")
     wanted = _wanted(specs)
     order = [n for n in names if book.visible.get(n, True)] + [n for n in names if not book.visible.get(n, True)]
-    if not wanted:  # columns by letter only: the first sheet with data
+    if not wanted:  # columns by letter only: the first sheet with data in every column named
+        widest = max(col_index(s.strip()) for s in specs if s)
         for n in order:
-            if find_header(book.grid(n).rows)[0] is not None:
-                return n, (f"Sheet {n!r} was used (the first with data; the workbook also has "
+            rows = book.grid(n).rows
+            h = find_header(rows)[0]
+            if h is not None and len(rows[h]) > widest and len(_filled(rows[h])) > 1:
+                return n, (f"Sheet {n!r} was used (the first with data in those columns; the workbook also has "
                            f"{', '.join(repr(m) for m in names if m != n)}; add --sheet NAME to choose)."
                            if len(names) > 1 else "")
         raise ReadError(f"every sheet of {book.base} is empty.")

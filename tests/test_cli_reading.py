@@ -1,0 +1,118 @@
+"""`unbend report`'s reading options and messages (issue 9): --sheet chosen by its columns, --header-row,
+--decimal, --hidden, columns by letter, the same column refused.
+
+Data are invented here (seeded; a made-up pump test), proving properties with a known truth: the rows
+the command uses are the rows written, the messages name the option to type.
+"""
+from __future__ import annotations
+
+import contextlib
+import io
+
+import numpy as np
+import openpyxl
+import pytest
+
+from unbend.udfs import cli
+
+
+def run(argv):
+    out, err = io.StringIO(), io.StringIO()
+    with contextlib.redirect_stdout(out), contextlib.redirect_stderr(err):
+        code = cli.main([str(a) for a in argv])
+    return code, out.getvalue(), err.getvalue()
+
+
+def one_line(code, out, err):
+    lines = [ln for ln in err.splitlines() if ln.strip()]
+    assert code == cli.EXIT_BAD_INPUT and len(lines) == 1 and lines[0].startswith("unbend:"), err
+    assert "Traceback" not in out + err
+    return lines[0]
+
+
+@pytest.fixture(scope="module")
+def book(tmp_path_factory):
+    """Invented pump test on the third sheet of a workbook, under a title and a units row."""
+    rng = np.random.default_rng(77)
+    x = np.round(rng.uniform(5, 60, 30), 2)
+    y = np.round(0.8 * x ** 1.4 * rng.lognormal(0, 0.08, 30), 3)
+    wb = openpyxl.Workbook()
+    wb.active.title = "About"
+    wb.active["A1"] = "Invented pump test (not measurements)."
+    ws = wb.create_sheet("Notes")
+    ws["A1"] = "nothing here"
+    ws = wb.create_sheet("Runs")
+    ws["A1"] = "Pump test, invented"
+    ws.append([])
+    ws.append(["run", "speed", "flow"])
+    ws.append(["", "rpm", "L/s"])
+    for i, (a, b) in enumerate(zip(x, y)):
+        ws.append([i + 1, float(a), float(b)])
+    path = tmp_path_factory.mktemp("book") / "pump.xlsx"
+    wb.save(path)
+    return path, x, y
+
+
+def test_help_lists_the_reading_options():
+    code, out, _ = run(["report", "--help"])
+    assert code == 0
+    for opt in ("--header-row", "--decimal", "--hidden", "letter"):
+        assert opt in out
+
+
+def test_sheet_found_by_its_columns_letters_and_units(book, tmp_path):
+    path, x, y = book
+    code, out, err = run(["report", path, "--y", "C", "--x", "speed", "--out", tmp_path / "r.xlsx", "--quiet"])
+    assert code == 0, err
+    text = " ".join(out.split())
+    assert "Sheet 'Runs' was used" in text and "'About'" in text
+    assert "Row 4 holds units" in text and "flow (L/s)" in text and "speed (rpm)" in text
+    wb = openpyxl.load_workbook(tmp_path / "r.xlsx")
+    res = wb["Residuals"]
+    head = [c.value for c in res[2]]
+    got = [r[head.index("flow (L/s)")] for r in res.iter_rows(min_row=3, values_only=True) if r[0] is not None]
+    np.testing.assert_array_equal(got, y)  # the rows written are the rows used
+    rows = [r[0] for r in res.iter_rows(min_row=3, values_only=True) if r[0] is not None]
+    assert rows == list(range(5, 35))  # sheet rows: title, blank, header, units above
+
+
+def test_letters_only_take_the_first_sheet_with_those_columns(book, tmp_path):
+    path, x, y = book
+    code, out, err = run(["report", path, "--y", "C", "--x", "B", "--out", tmp_path / "r.xlsx", "--quiet"])
+    assert code == 0, err
+    text = " ".join(out.split())
+    assert "Sheet 'Runs' was used" in text and "header is on row 3" in text and "Rows used: 30" in text
+
+
+def test_same_column_refused(book, tmp_path):
+    path, _, _ = book
+    line = one_line(*run(["report", path, "--y", "flow", "--x", "C", "--out", tmp_path / "r.xlsx"]))
+    assert "same column" in line and "--y flow" in line and "--x C" in line
+
+
+def test_unknown_column_lists_letters_and_headers(book, tmp_path):
+    path, _, _ = book
+    line = one_line(*run(["report", path, "--sheet", "Runs", "--y", "flow", "--x", "rate",
+                          "--out", tmp_path / "r.xlsx"]))
+    assert "'rate'" in line and "B speed" in line and "C flow" in line
+
+
+def test_header_row_outside_the_sheet(book, tmp_path):
+    path, _, _ = book
+    line = one_line(*run(["report", path, "--sheet", "Runs", "--header-row", "500", "--y", "flow", "--x",
+                          "speed", "--out", tmp_path / "r.xlsx"]))
+    assert "--header-row 500" in line
+
+
+def test_header_row_given(book, tmp_path):
+    path, _, y = book
+    code, out, err = run(["report", path, "--sheet", "Runs", "--header-row", "3", "--y", "flow", "--x", "speed",
+                          "--out", tmp_path / "r.xlsx", "--quiet"])
+    assert code == 0, err
+    assert "Rows used: 30" in out
+
+
+@pytest.mark.parametrize("bad", [["--hidden", "maybe"], ["--decimal", ";"]])
+def test_bad_choices_are_refused(book, bad):
+    code, out, err = run(["report", book[0], "--y", "flow", "--x", "speed", *bad])
+    assert code == 2 and "invalid choice" in err and "Traceback" not in err
