@@ -98,7 +98,7 @@ def registered():
 
 
 def calculate(path, inputs=None, outputs=None):
-    """Load, compile and calculate a workbook with `formulas`; cell values by reference ('F4', 'H2:T4')."""
+    """Load, compile and calculate a workbook with `formulas`; cell values by reference ('F4', 'H2:V4')."""
     model = formulas.ExcelModel().loads(str(path)).finish()
     book = path.name
     if inputs:
@@ -158,7 +158,7 @@ def book(tmp_path_factory, cars):
     ws["F8"] = '=UNBEND_PREDICT(A2:A200,B2:B200,D2,0,0,"high")'
     ws["F9"] = "=UNBEND_APPLY(D2,0.5)"
     ws["F10"] = "=UNBEND_PREDICT(A2:A200,B2:B200,D2,0,1)"  # a table in a plain cell: does not spill
-    ws["H2"] = ArrayFormula("H2:T4", "=UNBEND_PREDICT(A2:A200,B2:B200,D2:D3,0.5,1)")
+    ws["H2"] = ArrayFormula("H2:V4", "=UNBEND_PREDICT(A2:A200,B2:B200,D2:D3,0.5,1)")
     ws["H10"] = ArrayFormula("H10:I80", "=UNBEND_FIT(A2:A200,B2:B200,0.5,1)")
     wb.save(path)
     return path, dist, speed
@@ -181,7 +181,7 @@ def test_recalculated_workbook_matches_engine(registered, book):
     assert one(v, "F9") == pytest.approx(19.0 ** 0.5, rel=1e-15)
     assert str(one(v, "F7")).startswith("=POWER(MAX(")
     # the prediction table, entered as an array formula
-    t = block(v, "H2:T4")
+    t = block(v, "H2:V4")
     assert t == U.UNBEND_PREDICT(list(y), list(x), [19.0, 12.0], 0.5, 1)
     assert t[0][:2] == ["new x", prediction_headers(0.95)["median"]] and [r[1] for r in t[1:]] == [pytest.approx(m) for m in p["median"]]
     assert t[1][t[0].index("rows used")] == 40
@@ -233,7 +233,7 @@ def test_appending_rows_moves_the_results_as_the_engine_says(registered, book, t
     assert one(after, "F6") == pytest.approx(one(after, "F4"), rel=1e-12)
     yp, xp = unbend.best_pair(dist, speed)
     assert one(after, "F2") == yp and one(after, "F3") == xp
-    t = block(after, "H2:T4")
+    t = block(after, "H2:V4")
     assert [r[1] for r in t[1:]] == [pytest.approx(m, rel=1e-12) for m in p["median"]]
     assert t[1][t[0].index("rows used")] == 50 and t[1][t[0].index("rows skipped")] == 1
     fit_rows = {r[0]: r[1] for r in block(after, "H10:I80")[1:] if len(r) == 2}
