@@ -1011,6 +1011,11 @@ def _read_dates(flat, kinds, didx, date_texts, values, reasons, origin=None, uni
 # ----------------------------------------------------------------------------- combine
 def _aggregate_rows(cols, used) -> list:
     """Trailing used rows whose every value equals the sum (or exactly the mean) of the used rows above."""
+    with np.errstate(all="ignore"):  # huge values overflow the sums: then no row matches
+        return _aggregate_rows_checked(cols, used)
+
+
+def _aggregate_rows_checked(cols, used) -> list:
     found = []
     idx = np.flatnonzero(used)
     while len(found) < 3 and idx.size >= 5:
@@ -1018,6 +1023,8 @@ def _aggregate_rows(cols, used) -> list:
         vals = [float(c[last]) for c in cols]
         sums = [float(np.sum(c[above])) for c in cols]
         means = [float(np.mean(c[above])) for c in cols]
+        if not all(map(math.isfinite, sums + means)):
+            break
         if all(abs(v - s) <= 5e-5 * abs(s) for v, s in zip(vals, sums)) and any(s != 0 for s in sums):
             found.append((int(last), "sum"))
         elif all(abs(v - m) <= 1e-9 * abs(m) for v, m in zip(vals, means)) \
