@@ -350,19 +350,20 @@ def _xlsx_meta(path: str, part: str, grid: Grid) -> None:
         if area and m.group(2) and b"filterColumn" in m.group(2):
             filters.append(area)
     filters += [(t.top, t.left, t.bottom, t.right) for t in grid.tables if t.filtered]
-    for m in _ROW_HIDDEN.finditer(xml):
+    # each pattern runs only when its marker is in the part at all (a plain data sheet has none of them)
+    for m in (_ROW_HIDDEN.finditer(xml) if (b'hidden="1"' in xml or b'hidden="true"' in xml) else ()):
         rm = re.search(rb'\br="(\d+)"', m.group(0))
         if not rm:
             continue
         r = int(rm.group(1)) - 1
         grid.hidden[r] = "filter" if any(f[0] < r <= f[2] for f in filters) else "hand"
-    for m in _CELL_ERROR.finditer(xml):
+    for m in (_CELL_ERROR.finditer(xml) if b't="e"' in xml else ()):
         at = _cell_at(m.group(1))
         v = _V.search(m.group(2))
         if at is not None:
             grid.forced[at] = ERROR
             grid.formulas[at] = v.group(1).decode("utf-8", "replace") if v else "#error"
-    for m in _CELL_FORMULA.finditer(xml):
+    for m in (_CELL_FORMULA.finditer(xml) if (b"<f>" in xml or b"<f " in xml) else ()):
         at = _cell_at(m.group(1))
         if at is None:
             continue

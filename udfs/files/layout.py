@@ -392,8 +392,7 @@ def _read_columns(grid, cols, names, start, end, decimal, units) -> list:
     rows_ = grid.rows
     cells_of, readings, open_ = {}, {}, {}
     for j, nm in zip(cols, names):
-        cells = [(r[j] if j < len(r) else None) for r in rows_[start:end]]
-        cells_of[j] = [None if (isinstance(v, str) and v == "") else v for v in cells]
+        cells_of[j] = [(r[j] if j < len(r) and r[j] != "" else None) for r in rows_[start:end]]
         try:
             readings[j] = _read_one(grid, cells_of[j], j, nm, start, decimal, units)
         except intake.DecimalLeftOpen as e:
@@ -481,14 +480,11 @@ def _row_reasons(grid, start, end, cols, hidden, table):
     for j in range(width):
         if j in cols:
             continue
-        col = np.array([(r[j] if j < len(r) else None) for r in grid.rows[start:end]], dtype=object)
-        is_text = np.fromiter((isinstance(v, str) for v in col), dtype=bool, count=n)
-        if not is_text.any():
-            continue
-        codes, uniq = pd.factorize(col[is_text])
-        hit_u = np.array([intake.is_summary_label(u) for u in uniq], dtype=bool)
+        col = np.fromiter(((r[j] if j < len(r) else None) for r in grid.rows[start:end]), dtype=object, count=n)
+        codes, uniq = pd.factorize(col)
+        hit_u = np.fromiter((intake.is_summary_label(u) for u in uniq), dtype=bool, count=len(uniq))
         if hit_u.any():
-            idx = np.flatnonzero(is_text)[hit_u[codes]]
+            idx = np.flatnonzero((codes >= 0) & hit_u[np.maximum(codes, 0)])
             for i in idx.tolist():
                 if rr[i] == 0:
                     rr[i] = intake.SUMMARY
