@@ -352,6 +352,13 @@ def b_for_ods(folder):
     return b_filtered(folder, "lo_ods.xlsx")
 
 
+def b_for_ods_errors(folder):
+    path = b_errors_xlsx(folder)
+    target = os.path.join(folder, "lo_errors.xlsx")
+    shutil.copyfile(path, target)
+    return target
+
+
 def b_utf16_tab(folder):
     y, x = pump(seed=26)
     rows = [["Drehzahl", "Förderstrom"]] + [[_fmt(a, ",", "", 2), _fmt(b, ",", "", 3)] for a, b in zip(x, y)]
@@ -570,6 +577,10 @@ def _cases():
     y, x = pump(seed=19)
     c.append(Case(".ods saved by LibreOffice: filtered rows", "lo_ods.ods", b_for_ods, dict(y="flow", x=["speed"]),
                   _drop(y, hid), _drop(x, hid), skipped={"hidden by a filter": len(hid)}, convert="ods"))
+    y, x = pump(seed=18)
+    c.append(Case(".ods saved by LibreOffice: error values", "lo_errors.ods", b_for_ods_errors,
+                  dict(y="flow", x=["speed"]), _drop(y, [4, 9]), _drop(x, [4, 9]), skipped={"error value": 2},
+                  convert="ods"))
     y, x = pump(seed=26)
     c.append(Case("UTF-16 tab export with decimal commas", "utf16_tab.txt", b_utf16_tab,
                   dict(y="Förderstrom", x=["Drehzahl"]), y, x))

@@ -482,8 +482,47 @@ def _open_calamine(path: str, kind: str) -> Book:
     return Book(path=path, kind=kind, sheet_names=names, visible=_visibility(wb), _loader=load)
 
 
+_ODS_CELL = re.compile(rb'<table:(?:covered-)?table-cell\b([^>]*?)(/?)>')
+_ODS_COLS = re.compile(rb'table:number-columns-repeated="(\d+)"')
+_ODS_ROW_END = re.compile(rb'</table:table-row>')
+_ODS_FORMULA = re.compile(rb'table:formula="([^"]*)"')
+
+
+def _ods_errors(xml, start, end, grid) -> None:
+    """Error cells of one table (calamine reads them as blanks): walk its rows and cells, repeats included."""
+    from ..intake import ERROR
+    r = 0
+    pos = start
+    while True:
+        m = _ODS_ROW.search(xml, pos, end)
+        if not m:
+            return
+        rep = _ODS_REPEAT.search(m.group(1))
+        n = int(rep.group(1)) if rep else 1
+        if m.group(2):  # an empty self-closed row
+            r, pos = r + n, m.end()
+            continue
+        stop = _ODS_ROW_END.search(xml, m.end(), end)
+        row_end = stop.start() if stop else end
+        if b'calcext:value-type="error"' in xml[m.end():row_end]:
+            c = 0
+            for cm in _ODS_CELL.finditer(xml, m.end(), row_end):
+                reps = _ODS_COLS.search(cm.group(1))
+                k = int(reps.group(1)) if reps else 1
+                if b'calcext:value-type="error"' in cm.group(1):
+                    f = _ODS_FORMULA.search(cm.group(1))
+                    text = f.group(1).decode("utf-8", "replace").replace("of:", "", 1) if f else "#error"
+                    for i in range(r, r + min(n, 1000)):
+                        for j in range(c, c + min(k, 1000)):
+                            grid.forced[(i, j)] = ERROR
+                            grid.formulas[(i, j)] = text
+                c += k
+        r += n
+        pos = row_end
+
+
 def _ods_hidden(path, name, grid) -> None:
-    """Rows hidden by a filter ("filter") or by hand ("collapse"), from the content part of an .ods file."""
+    """Rows hidden by a filter ("filter") or by hand ("collapse"), and error cells, from an .ods content part."""
     from xml.sax.saxutils import escape
     with zipfile.ZipFile(path) as zf:
         xml = zf.read("content.xml")
@@ -503,6 +542,8 @@ def _ods_hidden(path, name, grid) -> None:
                 for i in range(r, r + n):
                     grid.hidden[i] = "filter" if vis.group(1) == b"filter" else "hand"
             r += n
+        if b'calcext:value-type="error"' in xml[pos:end]:
+            _ods_errors(xml, pos, end, grid)
         return
 
 
