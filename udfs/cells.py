@@ -285,15 +285,20 @@ def to_numbers(cells, name: str = "values") -> np.ndarray:
     Returns
     -------
     numpy.ndarray
-        New 1-D float array.  Every cell that is not a finite real number
-        (blank, text, error, bool, date, nan, inf) is NaN.  Trailing blank
-        cells are dropped; a blank argument gives an empty array.
+        New 1-D float array, read by the shared rules (:func:`read` keeps the
+        reasons): numbers, and numbers written as text, as numbers; a column of
+        dates as days (or hours) since its earliest; every other cell (blank,
+        other text, error, bool, a summary label, a value below a detection
+        limit, inf) is NaN.  Trailing blank cells are dropped; a blank argument
+        gives an empty array.
 
     Raises
     ------
     CellError
         For a block with more than one row and more than one column, or a
         range nested deeper than rows x columns.
+    unbend.udfs.intake.ReadingRefused
+        When texts leave the decimal separator open (``"1.234"`` alone).
     """
     return read(cells, name).values
 
