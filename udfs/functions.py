@@ -30,7 +30,8 @@ FUNCTIONS = {}
 
 _cache = cells.ResultCache(maxsize=128)
 
-_Y = "Range of y values (the response), one column; text, blanks and errors are skipped and counted."
+_Y = ("Range of y values (the response), one column; numbers written as text are read, blanks, other text and "
+      "errors are skipped and counted by reason.")
 _X = "Range of x values (the predictor): one column, or a block with one column per predictor."
 _YP = "Power for y: 2, 1, 0.5, 0 (log), -0.5, -1 ... Leave blank to use the suggested rung."
 _XP = "Power for x, same choices as y_power. Leave blank to use the suggested rung."
