@@ -11,7 +11,7 @@ from openpyxl.chart import Reference
 from openpyxl.styles import Alignment
 
 import unbend
-from unbend import UnbendError
+from unbend import DomainError, UnbendError
 from unbend.fitting import CAUTION
 
 from . import cells
@@ -22,17 +22,26 @@ from .wording import PREDICTION_HELP, SCAN_HEADERS, SCAN_HELP, prediction_header
 __all__ = ["Analysis", "analyse", "summary_lines", "write_report", "write_plots"]
 
 
+#: The plot files :func:`write_plots` writes, in its folder.
+PLOT_FILES = ("before_after.png", "residuals.png", "scan.png")
+
+
 @dataclass
 class Analysis:
-    """Everything the report shows, computed once by the engine."""
+    """Everything the report shows, computed once by the engine.
+
+    ``suggest_y`` / ``suggest_x`` are None when the data do not allow the
+    estimate (zeros or negatives without a start); ``notes`` then say why and
+    what to type.
+    """
 
     source: str
     y_name: str
     x_names: list
     y: np.ndarray
     X: np.ndarray
-    suggest_y: unbend.PowerSuggestion
-    suggest_x: unbend.PowerSuggestion
+    suggest_y: unbend.PowerSuggestion | None
+    suggest_x: unbend.PowerSuggestion | None
     scan: pd.DataFrame
     fit: unbend.LineFit
     predictions: pd.DataFrame
@@ -45,29 +54,138 @@ def _numbers(series) -> np.ndarray:
     return cells.to_numbers(list(series), "column") if len(series) else np.array([])
 
 
+# ----------------------------------------------------------------------------- which rungs the data allow
+def _allowed(values: np.ndarray, rungs, start: float):
+    """(rungs the values allow after adding ``start``, rungs they do not)."""
+    ok, out = [], []
+    for p in rungs:
+        try:
+            unbend.Reexpression(p, start).check(values, "values")
+            ok.append(p)
+        except DomainError:
+            out.append(p)
+    return ok, out
+
+
+def _nice_start(values: np.ndarray, start: float) -> float:
+    """unbend.propose_start for the log (so every rung works), as the shortest decimal that still works."""
+    prop = unbend.propose_start(values + start, 0.0) + start
+    for d in range(1, 18):
+        cand = float(f"{prop:.{d}g}")
+        if np.all(values + cand > 0):
+            return cand
+    return prop
+
+
+def _what_is_below(values: np.ndarray, start: float, name: str) -> str:
+    v = values + start
+    neg, zero = int(np.sum(v < 0)), int(np.sum(v == 0))
+    parts = ([f"{neg} value{'s' if neg != 1 else ''} below 0"] if neg else []) + \
+            ([f"{zero} zero{'s' if zero != 1 else ''}"] if zero else [])
+    after = f" after adding the start {start:g}" if start else ""
+    return f"{name} has {' and '.join(parts)}{after} (smallest {float(values.min()):g})"
+
+
+def _left_out(values, rungs_out, start, name, opt) -> str:
+    """The sentence that says which rungs the scan left out for one variable, and the start to type."""
+    strict = [p for p in rungs_out if p <= 0]
+    loose = [p for p in rungs_out if p > 0]
+    groups = []
+    if loose:
+        groups.append(f"{_labels(loose)}, which need every {name} at 0 or above")
+    if strict:
+        groups.append(f"{_labels(strict)}, which need every {name} above 0")
+    s = _nice_start(values, start)
+    return (f"{_what_is_below(values, start, name)}, so the scan leaves out {', and '.join(groups)}. To include "
+            f"them, add a start: {opt} {s:g} (unbend's proposal, from the smallest {name} and the smallest gap "
+            f"between distinct values).")
+
+
+def _labels(powers) -> str:
+    names = [f"{unbend.rung_label(p)} ({p:g})" for p in powers]
+    return names[0] if len(names) == 1 else ", ".join(names[:-1]) + " and " + names[-1]
+
+
+def _pinned_refused(power, values, start, name, opt_power, opt_start, allowed) -> str:
+    s = _nice_start(values, start)
+    return (f"{opt_power} {power:g} ({unbend.rung_label(power)}) cannot be used: {_what_is_below(values, start, name)}. "
+            f"Add a start ({opt_start} {s:g}), or choose a power these data allow: "
+            f"{opt_power} {_or([f'{p:g}' for p in allowed])}.")
+
+
+def _or(items) -> str:
+    return items[0] if len(items) == 1 else ", ".join(items[:-1]) + " or " + items[-1]
+
+
+# ----------------------------------------------------------------------------- the analysis
 def analyse(df: pd.DataFrame, y_col: str, x_cols: list, groups_col: str | None = None, *,
-            source: str = "", invented: bool = False) -> Analysis:
-    """Run the engine over the chosen columns: suggestions, scan, fit at the best pair, predictions."""
+            source: str = "", invented: bool = False, y_power=None, x_power=None, y_start: float = 0.0,
+            x_start: float = 0.0, level: float = 0.95) -> Analysis:
+    """Run the engine over the chosen columns: suggestions, scan, fit at the best pair, predictions.
+
+    ``y_power`` / ``x_power`` pin a power (None: the pair the scan ranks
+    first); ``y_start`` / ``x_start`` are added before re-expressing;
+    ``level`` is the level of every interval. Zeros and negatives never stop
+    the analysis: the scan ranks only the rungs the data allow, and the notes
+    say which were left out and which start would bring them back.
+    """
     n = len(df)
     y = cells.to_numbers(list(df[y_col]), y_col)
     X = np.column_stack([cells.to_numbers(list(df[c]), c) for c in x_cols]) if n else np.zeros((0, len(x_cols)))
     y, X = cells.pad_rows(y, X) if X.size else (y, X)
     if y.shape[0] != X.shape[0]:
         y, X = cells.pad_rows(y, X)
-    scan = unbend.scan(y, X)
-    yp, xp = unbend.best_pair(y, X, table=scan)
-    sy = unbend.suggest_power(y, X, x_power=xp)
-    sx = unbend.suggest_x_power(y, X, y_power=yp)
     names = [str(c) for c in x_cols]
-    f = unbend.fit(y, X, y_power=yp, x_power=xp, x_names=names, y_name=str(y_col))
+    yname, xname = str(y_col), ", ".join(names)
+    ok = np.isfinite(y) & np.isfinite(X).all(axis=1)
+    yu, xu = y[ok], X[ok].ravel()
+    notes = []
+    base = tuple(unbend.LADDER)
+    y_try = base + ((y_power,) if y_power is not None and y_power not in base else ())
+    x_try = base + ((x_power,) if x_power is not None and x_power not in base else ())
+    y_ok, y_out = _allowed(yu, y_try, y_start) if yu.size else (list(y_try), [])
+    x_ok, x_out = _allowed(xu, x_try, x_start) if xu.size else (list(x_try), [])
+    if y_power is not None and y_power in y_out:
+        raise UnbendError(_pinned_refused(y_power, yu, y_start, yname, "--y-power", "--y-start", y_ok))
+    if x_power is not None and x_power in x_out:
+        raise UnbendError(_pinned_refused(x_power, xu, x_start, xname, "--x-power", "--x-start", x_ok))
+    if y_out:
+        notes.append(_left_out(yu, [p for p in y_out if p in base], y_start, yname, "--y-start"))
+    if x_out:
+        notes.append(_left_out(xu, [p for p in x_out if p in base], x_start, xname, "--x-start"))
+    scan = unbend.scan(y, X, y_start=y_start, x_start=x_start, rungs=y_ok, x_rungs=x_ok)
+    yp, xp = unbend.best_pair(y, X, y_start=y_start, x_start=x_start, y_power=y_power, x_power=x_power,
+                              table=scan)
+    sy = sx = None
+    if yu.size and np.all(yu + y_start > 0):
+        sy = unbend.suggest_power(y, X, x_power=xp, level=level, y_start=y_start, x_start=x_start)
+    else:
+        notes.append(f"Power for {yname}: not estimated, because the Box-Cox likelihood needs every {yname} above 0 "
+                     f"and {_what_is_below(yu, y_start, yname)}. With --y-start {_nice_start(yu, y_start):g} it is "
+                     "estimated; meanwhile the scan ranks the rungs these data allow.")
+    if xu.size and np.all(xu + x_start > 0):
+        sx = unbend.suggest_x_power(y, X, y_power=yp, level=level, y_start=y_start, x_start=x_start)
+    else:
+        notes.append(f"Power for {xname}: not estimated, because the likelihood over the x power needs every "
+                     f"{xname} above 0 and {_what_is_below(xu, x_start, xname)}. With --x-start "
+                     f"{_nice_start(xu, x_start):g} it is estimated; meanwhile the scan ranks the rungs these data "
+                     "allow.")
+    f = unbend.fit(y, X, y_power=yp, x_power=xp, y_start=y_start, x_start=x_start, level=level, x_names=names,
+                   y_name=yname)
     new = _prediction_points(f)
     p = f.predict(new)
     spread = None
     if groups_col is not None:
-        spread = unbend.spread_power(y, np.array(cells.to_labels(list(df[groups_col]), groups_col)
-                                                 + [None] * max(0, y.size - len(df)), dtype=object)[: y.size])
-    return Analysis(source=source, y_name=str(y_col), x_names=names, y=y, X=X, suggest_y=sy, suggest_x=sx,
-                    scan=scan, fit=f, predictions=p, spread=spread, invented=invented)
+        labels = np.array(cells.to_labels(list(df[groups_col]), groups_col) + [None] * max(0, y.size - len(df)),
+                          dtype=object)[: y.size]
+        try:
+            spread = unbend.spread_power(y, labels, level=level, start=y_start)
+        except DomainError:
+            notes.append(f"Spread against level across groups: not estimated, because it needs every {yname} above "
+                         f"0 and {_what_is_below(yu, y_start, yname)}; with --y-start {_nice_start(yu, y_start):g} "
+                         "it is estimated.")
+    return Analysis(source=source, y_name=yname, x_names=names, y=y, X=X, suggest_y=sy, suggest_x=sx,
+                    scan=scan, fit=f, predictions=p, spread=spread, invented=invented, notes=notes)
 
 
 def _prediction_points(f) -> np.ndarray:
@@ -112,8 +230,11 @@ def summary_lines(a: Analysis) -> list:
                    + ("; ..." if len(f.skipped) > 5 else "") + ".")
     names = {"y": a.y_name, "x": ", ".join(a.x_names)}
     for s in (a.suggest_y, a.suggest_x):
+        if s is None:
+            continue
         out.append(f"Power for {names.get(s.what, s.what)}: estimate {_fmt(s.estimate)}, {s.level:.0%} interval "
                    f"{_fmt(s.low)} to {_fmt(s.high)}. Use {s.label} ({s.rung:g}): {_note(s)}")
+    out.extend(a.notes)
     top = a.scan.iloc[0]
     out.append(f"The scan of {len(a.scan)} pairs of rungs ranks {top.y_rung} of {a.y_name} with {top.x_rung} of "
                f"{names['x']} first (ranked on likelihood, with pairs whose residuals still curve pushed down; "
