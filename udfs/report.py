@@ -173,7 +173,7 @@ def analyse(df: pd.DataFrame, y_col: str, x_cols: list, groups_col: str | None =
     f = unbend.fit(y, X, y_power=yp, x_power=xp, y_start=y_start, x_start=x_start, level=level, x_names=names,
                    y_name=yname)
     new = _prediction_points(f)
-    p = f.predict(new)
+    p = f.predict(new, level=level)
     spread = None
     if groups_col is not None:
         labels = np.array(cells.to_labels(list(df[groups_col]), groups_col) + [None] * max(0, y.size - len(df)),
