@@ -184,6 +184,25 @@ def _data_value(v):
     return str(v)
 
 
+def _data_values(values, name: str):
+    """:func:`_data_value` of every value; a float array stays a float array (NaN and infinity: blank)."""
+    if isinstance(values, np.ndarray) and values.ndim == 1 and values.dtype.kind == "f":
+        return np.where(np.isfinite(values), values, np.nan)
+    return [_data_value(v) for v in _column(values, name)]
+
+
+def _engine_numbers(vals):
+    if isinstance(vals, np.ndarray):
+        return vals
+    return [_engine_number(v) for v in vals]
+
+
+def _padded(vals, k: int):
+    if isinstance(vals, np.ndarray):
+        return np.concatenate([vals, np.full(k, np.nan)])
+    return list(vals) + [None] * k
+
+
 def _put_data(ws, coord: str, v):
     val = _data_value(v)
     c = ws[coord]
@@ -466,8 +485,7 @@ def add_portable_sheet(workbook, y, x, new_x=(), *, y_power=1.0, x_power=1.0, y_
     xp = check_power(x_power, "x power")
     lv = check_level(level)
     ys_, xs_ = _start(y_start, "y start"), _start(x_start, "x start")
-    yv = [_data_value(v) for v in _column(y, "y")]
-    xv = [_data_value(v) for v in _column(x, "x")]
+    yv, xv = _data_values(y, "y"), _data_values(x, "x")
     nv = [_data_value(v) for v in _column(new_x, "new x")]
     if len(yv) != len(xv):
         raise UnbendError(f"y has {len(yv)} rows but x has {len(xv)}; give columns of the same length.")
@@ -490,7 +508,7 @@ def add_portable_sheet(workbook, y, x, new_x=(), *, y_power=1.0, x_power=1.0, y_
     if len(nv) + spare_new_rows == 0:
         raise UnbendError("give at least one new x or one spare row for new x values.")
     # the engine fits the same numbers first: clear errors now, and a sheet that opens on a valid line
-    f = unbend.fit([_engine_number(v) for v in yv], [_engine_number(v) for v in xv], y_power=yp, x_power=xp,
+    f = unbend.fit(_engine_numbers(yv), _engine_numbers(xv), y_power=yp, x_power=xp,
                    y_start=ys_, x_start=xs_, level=lv)
     tab = f.residuals
     fy, fyre, fxre = _digits(_typical(tab["y"])), _digits(_typical(tab["y_re"])), _digits(_typical(tab["x_re"]))
@@ -628,8 +646,8 @@ def add_portable_sheet(workbook, y, x, new_x=(), *, y_power=1.0, x_power=1.0, y_
     head.update(_DATA_HEAD)
     for key, col in DATA_COLUMNS.items():
         sh.text(data_header, _col(col), head[key], _S_HEAD)
-    spare = [None] * spare_rows
-    cols = [Column("value", yv + spare, Style(num_format=fy)), Column("value", xv + spare, Style(num_format=fx))]
+    cols = [Column("value", _padded(yv, spare_rows), Style(num_format=fy)),
+            Column("value", _padded(xv, spare_rows), Style(num_format=fx))]
     for key in ("x_used", "y_re", "x_re", "line", "residual"):
         cols.append(Column("formula", None, Style(num_format=data_fmt.get(key)),
                            formula_at=lambda r, k=key: _data_formulas(r)[k]))

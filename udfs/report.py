@@ -488,9 +488,15 @@ def write_report(a: Analysis, out_path) -> str:
 
 def write_plots(a: Analysis, folder) -> list:
     """PNG plots: before/after scatter, residuals against fitted, the scan as a picture."""
-    import matplotlib
-    matplotlib.use("Agg")
-    import matplotlib.pyplot as plt
+    # the object-oriented interface with the Agg canvas: no pyplot, no GUI backend to look for, faster to import
+    from matplotlib.backends.backend_agg import FigureCanvasAgg
+    from matplotlib.figure import Figure
+
+    def subplots(*grid, figsize):
+        fig = Figure(figsize=figsize)
+        FigureCanvasAgg(fig)
+        ax = fig.subplots(*grid)
+        return fig, ax
 
     os.makedirs(folder, exist_ok=True)
     f = a.fit
@@ -502,7 +508,7 @@ def write_plots(a: Analysis, folder) -> list:
     size = 14.0 if f.n <= 2000 else max(1.0, 14.0 * (2000.0 / f.n) ** 0.5)
     alpha = 1.0 if f.n <= 2000 else 0.5
 
-    fig, ax = plt.subplots(1, 2, figsize=(10, 4.2))
+    fig, ax = subplots(1, 2, figsize=(10, 4.2))
     ax[0].scatter(res[x0], res["y"], s=size, alpha=alpha, color="#2a6f97", linewidths=0)
     ax[0].set_xlabel(x0)
     ax[0].set_ylabel(a.y_name)
@@ -517,10 +523,9 @@ def write_plots(a: Analysis, folder) -> list:
     fig.tight_layout()
     p = os.path.join(folder, "before_after.png")
     atomic_save(lambda t: fig.savefig(t, dpi=110, format="png", metadata=meta), p)
-    plt.close(fig)
     paths.append(p)
 
-    fig, ax = plt.subplots(figsize=(6.5, 4.2))
+    fig, ax = subplots(figsize=(6.5, 4.2))
     ax.scatter(res["fitted"], res["residual"], s=size, alpha=alpha, color="#2a6f97", linewidths=0)
     ax.axhline(0, color="#888888", lw=1)
     ax.set_xlabel("fitted value (re-expressed scale)")
@@ -530,7 +535,6 @@ def write_plots(a: Analysis, folder) -> list:
     fig.tight_layout()
     p = os.path.join(folder, "residuals.png")
     atomic_save(lambda t: fig.savefig(t, dpi=110, format="png", metadata=meta), p)
-    plt.close(fig)
     paths.append(p)
 
     t = a.scan
@@ -551,7 +555,7 @@ def write_plots(a: Analysis, folder) -> list:
             mark[i, j] = "ok"
         if row.rank == 1:
             mark[i, j] = "best"
-    fig, ax = plt.subplots(figsize=(7, 5))
+    fig, ax = subplots(figsize=(7, 5))
     im = ax.imshow(grid, cmap="viridis", aspect="auto")
     ax.set_xticks(range(len(xr)), [unbend.rung_label(v) for v in xr], rotation=30, ha="right")
     ax.set_yticks(range(len(yr)), [unbend.rung_label(v) for v in yr])
@@ -569,6 +573,5 @@ def write_plots(a: Analysis, folder) -> list:
     fig.tight_layout()
     p = os.path.join(folder, "scan.png")
     atomic_save(lambda t_: fig.savefig(t_, dpi=110, format="png", metadata=meta), p)
-    plt.close(fig)
     paths.append(p)
     return paths

@@ -308,10 +308,28 @@ class Sheet:
             self.ws.print_area(print_area)
 
     def table(self, first_row, first_col, last_row, last_col, name, headers, style_name, header_style=None):
-        """A spreadsheet table over cells already written (its header row included)."""
-        self.ws.add_table(first_row - 1, first_col - 1, last_row - 1, last_col - 1, {
+        """A spreadsheet table over cells already written (its header row included).
+
+        XlsxWriter checks and records every cell of a table's range, about
+        100 bytes and a microsecond a cell; for a table over a row block the
+        table is added over its header and first row and then given its full
+        range (the ``range``, ``a_range`` and ``autofilter`` entries XlsxWriter
+        keeps for it).
+        """
+        from xlsxwriter.utility import xl_range
+
+        short = min(last_row, first_row + 1)
+        ret = self.ws.add_table(first_row - 1, first_col - 1, short - 1, last_col - 1, {
             "name": name, "style": style_name, "autofilter": True,
             "columns": [{"header": clean_text(h), "header_format": self.book.fmt(header_style)} for h in headers]})
+        if ret != 0:
+            raise ValueError(f"the table {name!r} cannot be added (XlsxWriter says {ret})")
+        if short != last_row:
+            t = self.ws.tables[-1]
+            full = xl_range(first_row - 1, first_col - 1, last_row - 1, last_col - 1)
+            if t.get("range") != xl_range(first_row - 1, first_col - 1, short - 1, last_col - 1):
+                raise RuntimeError("this XlsxWriter keeps tables differently; update unbend.udfs.xlsx.Sheet.table")
+            t["range"] = t["a_range"] = t["autofilter"] = full
         self.table_names.append(name)
 
     def validation(self, row, col, spec: dict):
@@ -381,12 +399,21 @@ def _esc(s: str) -> str:
 
 
 class _ColumnPart:
-    """Renders one block column, a chunk of rows at a time, as a list of <c> elements."""
+    """Renders one block column for a chunk of rows: a piece of the row template and its argument lists.
+
+    A row of the block is ``template.format(row_number, *arguments)``: the
+    pieces of all columns joined, each using ``{0}`` for the row number and its
+    own numbered fields for its values, so a whole chunk is rendered by one
+    ``map`` over the rows (C speed) rather than cell by cell.
+    """
 
     def __init__(self, col, letter, first_row, n, const, s_attr, sidx, si):
         self.col, self.letter, self.first_row, self.n = col, letter, first_row, n
         self.const, self.s_attr, self.sidx, self.si = const, s_attr, sidx, si
         if col.kind == "formula":
+            if col.values is not None:
+                raise ValueError("a formula block column is left for the spreadsheet program to compute; "
+                                 "give no values")
             text = col.formula_at(first_row)
             text = text[1:] if text.startswith("=") else text
             last = first_row + n - 1
@@ -394,40 +421,66 @@ class _ColumnPart:
                            if n > 1 else f"<f>{_esc(text)}</f>")
             self.shared = f'<f t="shared" si="{si}"/>'
 
-    def chunk(self, i0: int, i1: int) -> list:
+    def _styles(self, i0, i1):
+        if self.const is not None:
+            return None
+        return [self.s_attr[k] for k in self.sidx[i0:i1].tolist()]
+
+    def piece(self, i0: int, i1: int, k: int):
+        """(template piece, list of argument lists); ``k`` is the number of the piece's first field."""
         col, L = self.col, self.letter
-        vals = col.values[i0:i1] if col.values is not None else [None] * (i1 - i0)
-        if isinstance(vals, np.ndarray):
-            vals = vals.tolist()
+        styles = self._styles(i0, i1)
+        s = "" if self.const is None else self.const
+        if col.kind == "formula":
+            if styles is None:
+                return f'<c r="{L}{{0}}"{s}>{self.shared}</c>', []
+            return f'<c r="{L}{{0}}"{{{k}}}>{self.shared}</c>', [styles]
+        vals = col.values[i0:i1]
+        arr = np.asarray(vals, dtype=float) if col.kind == "number" else _as_floats(vals)
+        if arr is not None:
+            text = repr(arr.tolist())[1:-1].split(", ")  # shortest round-trip digits, in C
+            ok = np.isfinite(arr)
+            if not ok.all():
+                text = [f"<v>{t}</v>" if good else "" for t, good in zip(text, ok.tolist())]
+                inner = f"{{{k}}}"
+            else:
+                inner = f"<v>{{{k}}}</v>"
+            if styles is None:
+                return f'<c r="{L}{{0}}"{s}>{inner}</c>', [text]
+            inner = inner.replace(f"{{{k}}}", f"{{{k + 1}}}")
+            return f'<c r="{L}{{0}}"{{{k}}}>{inner}</c>', [styles, text]
         rows = range(self.first_row + i0, self.first_row + i1)
-        ss = (itertools.repeat(self.const) if self.const is not None
-              else [self.s_attr[k] for k in self.sidx[i0:i1].tolist()])
-        if col.kind == "number":
-            out = [f'<c r="{L}{r}"{s}><v>{v!r}</v></c>' for r, v, s in zip(rows, vals, ss)]
-            bad = [k for k, v in enumerate(vals) if not (type(v) is float and v - v == 0.0)]
-            for k in bad:  # NaN, infinite or missing: a blank cell (kept only for its style)
-                s = self.const if self.const is not None else ss[k]
-                out[k] = f'<c r="{L}{rows[k]}"{s}/>' if s else ""
-            return out
-        if col.kind == "value":
-            return [_value_cell(L, r, s, v) for r, v, s in zip(rows, vals, ss)]
+        ss = itertools.repeat(s) if styles is None else styles
         if col.kind == "text":
-            out = []
-            for r, v, s in zip(rows, vals, ss):
-                if v is None or v == "":
-                    out.append(f'<c r="{L}{r}"{s}/>' if s else "")
-                else:
-                    t = _esc(clean_text(v))
-                    sp = ' xml:space="preserve"' if t[:1].isspace() or t[-1:].isspace() else ""
-                    out.append(f'<c r="{L}{r}"{s} t="inlineStr"><is><t{sp}>{t}</t></is></c>')
-            return out
-        sh = self.shared
-        out = [f'<c r="{L}{r}"{s}>{sh}<v>{v!r}</v></c>' if type(v) is float and v - v == 0.0
-               else _formula_cell(L, r, s, sh, v) for r, v, s in zip(rows, vals, ss)]
-        if i0 == 0:
-            s = self.const if self.const is not None else ss[0]
-            out[0] = _formula_cell(L, rows[0], s, self.master, vals[0])
-        return out
+            cells = [_text_cell(L, r, st, v) for r, v, st in zip(rows, vals, ss)]
+        else:
+            cells = [_value_cell(L, r, st, v) for r, v, st in zip(rows, vals, ss)]
+        return f"{{{k}}}", [cells]
+
+    def first_cell(self) -> str:
+        """The block's first cell of a formula column: the one that holds the shared formula's text."""
+        s = self.const if self.const is not None else self.s_attr[int(self.sidx[0])]
+        return f'<c r="{self.letter}{self.first_row}"{s}>{self.master}</c>'
+
+
+def _as_floats(vals):
+    """The values as a float array when every one is a real number (not a boolean), else None."""
+    if isinstance(vals, np.ndarray) and vals.dtype.kind == "f":
+        return vals
+    try:
+        if any(type(v) not in (float, int) for v in vals):
+            return None
+    except TypeError:
+        return None
+    return np.asarray(vals, dtype=float)
+
+
+def _text_cell(L, r, s, v) -> str:
+    if v is None or v == "":
+        return f'<c r="{L}{r}"{s}/>' if s else ""
+    t = _esc(clean_text(v))
+    sp = ' xml:space="preserve"' if t[:1].isspace() or t[-1:].isspace() else ""
+    return f'<c r="{L}{r}"{s} t="inlineStr"><is><t{sp}>{t}</t></is></c>'
 
 
 def _value_cell(L, r, s, v) -> str:
@@ -443,21 +496,8 @@ def _value_cell(L, r, s, v) -> str:
     return f'<c r="{L}{r}"{s}/>' if s else ""
 
 
-def _formula_cell(L, r, s, f, v) -> str:
-    """A formula cell with its value: a number, text, an error code, a boolean or empty."""
-    if isinstance(v, str):
-        if v.startswith("#"):
-            return f'<c r="{L}{r}"{s} t="e">{f}<v>{_esc(v)}</v></c>'
-        return f'<c r="{L}{r}"{s} t="str">{f}<v>{_esc(clean_text(v))}</v></c>'
-    if isinstance(v, bool):
-        return f'<c r="{L}{r}"{s} t="b">{f}<v>{int(v)}</v></c>'
-    if v is None or not isinstance(v, (int, float)) or not math.isfinite(v):
-        return f'<c r="{L}{r}"{s} t="str">{f}<v></v></c>'
-    return f'<c r="{L}{r}"{s}>{f}<v>{float(v)!r}</v></c>'
-
-
 class _BlockRenderer:
-    CHUNK = 4096
+    CHUNK = 8192
 
     def __init__(self, first_row, n, parts):
         self.first_row, self.n, self.parts = first_row, n, parts
@@ -465,9 +505,23 @@ class _BlockRenderer:
     def __call__(self, fh):
         for i0 in range(0, self.n, self.CHUNK):
             i1 = min(self.n, i0 + self.CHUNK)
-            cols = [p.chunk(i0, i1) for p in self.parts]
-            r = self.first_row + i0
-            lines = []
-            for k, cells in enumerate(zip(*cols)):
-                lines.append(f'<row r="{r + k}">{"".join(cells)}</row>')
+            pieces, args = [], []
+            for p in self.parts:
+                piece, more = p.piece(i0, i1, 1 + len(args))
+                pieces.append(piece)
+                args.extend(more)
+            template = '<row r="{0}">' + "".join(pieces) + "</row>"
+            rows = range(self.first_row + i0, self.first_row + i1)
+            lines = list(map(template.format, rows, *args))
+            if i0 == 0 and any(p.col.kind == "formula" for p in self.parts):
+                lines[0] = self._first_row(lines[0])
             fh.write("".join(lines))
+
+    def _first_row(self, line: str) -> str:
+        """The block's first row again, with the text of each shared formula in its cell."""
+        for p in self.parts:
+            if p.col.kind == "formula":
+                start = line.index(f'<c r="{p.letter}{self.first_row}"')
+                end = line.index("</c>", start) + len("</c>")
+                line = line[:start] + p.first_cell() + line[end:]
+        return line
