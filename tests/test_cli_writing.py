@@ -435,24 +435,24 @@ def test_a_run_waits_for_the_lock_before_putting_files_in_place(two_sources, tmp
 
 # ----------------------------------------------------------------------------- python -m unbend
 def test_python_m_unbend_is_the_command(small, tmp_path):
+    """`python -m unbend` (a real process) against the `unbend` command's own entry point, cli.main."""
     a, b = tmp_path / "a", tmp_path / "b"
     a.mkdir(), b.mkdir()
-    pa = subprocess.Popen([console_script(), "report", str(small), "--y", "load", "--x", "temp", "--out",
-                           str(a / "r.xlsx"), "--quiet"], stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True)
     pb = subprocess.Popen([sys.executable, "-m", "unbend", "report", str(small), "--y", "load", "--x", "temp",
                            "--out", str(b / "r.xlsx"), "--quiet"], stdout=subprocess.PIPE, stderr=subprocess.PIPE,
                           text=True)
-    (oa, ea), (ob, eb) = pa.communicate(timeout=300), pb.communicate(timeout=300)
-    assert pa.returncode == pb.returncode == 0, (ea, eb)
+    code, oa, ea = run_main(["report", small, "--y", "load", "--x", "temp", "--out", a / "r.xlsx", "--quiet"])
+    ob, eb = pb.communicate(timeout=300)
+    assert code == pb.returncode == 0, (ea, eb)
     assert oa.replace(str(a), "<out>") == ob.replace(str(b), "<out>")
     assert ea == eb == ""
     fa, fb = fit_items(openpyxl.load_workbook(a / "r.xlsx")["Fit"]), fit_items(openpyxl.load_workbook(b / "r.xlsx")["Fit"])
     assert fa == fb
     # a refusal is the same line and the same exit status
-    bad = [str(tmp_path / "missing.csv"), "--y", "y", "--x", "x"]
-    ra = subprocess.run([console_script(), "report", *bad], capture_output=True, text=True)
-    rb = subprocess.run([sys.executable, "-m", "unbend", "report", *bad], capture_output=True, text=True)
-    assert (ra.returncode, ra.stderr, ra.stdout) == (rb.returncode, rb.stderr, rb.stdout) and ra.returncode == 2
+    bad = ["report", str(tmp_path / "missing.csv"), "--y", "y", "--x", "x"]
+    code, o, e = run_main(bad)
+    r = subprocess.run([sys.executable, "-m", "unbend", *bad], capture_output=True, text=True)
+    assert (r.returncode, r.stderr, r.stdout) == (code, e, o) and code == 2
 
 
 BLOCK_UDFS = """
