@@ -449,7 +449,7 @@ def test_python_m_unbend_is_the_command(small, tmp_path):
     fa, fb = fit_items(openpyxl.load_workbook(a / "r.xlsx")["Fit"]), fit_items(openpyxl.load_workbook(b / "r.xlsx")["Fit"])
     assert fa == fb
     # a refusal is the same line and the same exit status
-    bad = ["report", str(tmp_path / "missing.csv"), "--y", "y", "--x", "x"]
+    bad = ["report", str(tmp_path / "missing.csv"), "--y", "y", "--x", "x", "--quiet"]
     code, o, e = run_main(bad)
     r = subprocess.run([sys.executable, "-m", "unbend", *bad], capture_output=True, text=True)
     assert (r.returncode, r.stderr, r.stdout) == (code, e, o) and code == 2
@@ -472,6 +472,28 @@ def test_python_m_unbend_without_the_spreadsheet_side_says_so():
     r = subprocess.run([sys.executable, "-c", BLOCK_UDFS], capture_output=True, text=True)
     assert r.returncode == 2, r
     assert "spreadsheet side" in r.stderr and "unbend.udfs" in r.stderr and "Traceback" not in r.stderr
+
+
+# ----------------------------------------------------------------------------- plots in a helper process
+def test_plots_from_the_helper_process_are_the_plots_drawn_here(tmp_path):
+    import pandas as pd
+
+    from unbend.udfs.plots import PlotWorker, draw, plot_data
+    from unbend.udfs.report import analyse
+
+    a = analyse(pd.DataFrame(shifted(40, seed=4)), "load", ["temp"], x_start=6.0)
+    w = PlotWorker()
+    try:
+        w.draw(plot_data(a), tmp_path / "helper")
+        got = w.result(timeout=300)
+    finally:
+        w.close()
+    if (os.cpu_count() or 1) >= 2:
+        assert not w.drawn_here
+    here = draw(plot_data(a), tmp_path / "here")
+    assert [Path(p).name for p in got] == [Path(p).name for p in here] == PLOTS
+    for p, q in zip(got, here):
+        assert Path(p).read_bytes() == Path(q).read_bytes()
 
 
 # ----------------------------------------------------------------------------- start-up

@@ -58,7 +58,7 @@ import stat
 import tempfile
 import time
 
-__all__ = ["OutputError", "ReportFiles", "target_lock", "plots_folder_for"]
+__all__ = ["OutputError", "ReportFiles", "target_lock", "plots_folder_for", "atomic_save"]
 
 #: How long a run waits for another run to finish putting its files in place.
 LOCK_WAIT_SECONDS = 120.0
@@ -307,3 +307,31 @@ def _unlock(fd) -> None:
         return
     import fcntl
     fcntl.flock(fd, fcntl.LOCK_UN)
+
+
+def atomic_save(save, path) -> str:
+    """Call ``save(tmp_path)`` then move the file into place in one step.
+
+    The temporary file sits in the target folder so the final rename never
+    crosses file systems; on failure it is removed and ``path`` is untouched.
+    """
+    path = os.fspath(path)
+    folder = os.path.dirname(os.path.abspath(path))
+    os.makedirs(folder, exist_ok=True)
+    fd, tmp = tempfile.mkstemp(prefix=".unbend-", suffix=os.path.splitext(path)[1], dir=folder)
+    os.close(fd)
+    try:
+        save(tmp)
+        umask = os.umask(0)
+        os.umask(umask)
+        os.chmod(tmp, 0o666 & ~umask)
+        os.replace(tmp, path)
+    except OSError as e:
+        if os.path.exists(tmp):
+            os.unlink(tmp)
+        raise OSError(e.errno, e.strerror or str(e), path) from None
+    except BaseException:
+        if os.path.exists(tmp):
+            os.unlink(tmp)
+        raise
+    return path

@@ -20,8 +20,7 @@ from .wording import PREDICTION_HELP, SCAN_HEADERS, SCAN_HELP, prediction_header
 __all__ = ["Analysis", "analyse", "summary_lines", "write_report", "write_plots"]
 
 
-#: The plot files :func:`write_plots` writes, in its folder.
-PLOT_FILES = ("before_after.png", "residuals.png", "scan.png")
+from .plots import PLOT_FILES  # noqa: E402  (the plot files write_plots writes, in its folder)
 
 
 @dataclass
@@ -487,91 +486,7 @@ def write_report(a: Analysis, out_path) -> str:
 
 
 def write_plots(a: Analysis, folder) -> list:
-    """PNG plots: before/after scatter, residuals against fitted, the scan as a picture."""
-    # the object-oriented interface with the Agg canvas: no pyplot, no GUI backend to look for, faster to import
-    from matplotlib.backends.backend_agg import FigureCanvasAgg
-    from matplotlib.figure import Figure
+    """PNG plots: before/after scatter, residuals against fitted, the scan as a picture (see udfs/plots.py)."""
+    from .plots import draw, plot_data
 
-    def subplots(*grid, figsize):
-        fig = Figure(figsize=figsize)
-        FigureCanvasAgg(fig)
-        ax = fig.subplots(*grid)
-        return fig, ax
-
-    os.makedirs(folder, exist_ok=True)
-    f = a.fit
-    res = f.residuals
-    x0 = f.x_names[0]
-    paths = []
-    meta = {"Software": "unbend", "unbend run": a.run_id}
-    # many points: smaller, lighter markers so the cloud still shows where the points are dense
-    size = 14.0 if f.n <= 2000 else max(1.0, 14.0 * (2000.0 / f.n) ** 0.5)
-    alpha = 1.0 if f.n <= 2000 else 0.5
-
-    fig, ax = subplots(1, 2, figsize=(10, 4.2))
-    ax[0].scatter(res[x0], res["y"], s=size, alpha=alpha, color="#2a6f97", linewidths=0)
-    ax[0].set_xlabel(x0)
-    ax[0].set_ylabel(a.y_name)
-    ax[0].set_title("Before: original units")
-    ax[1].scatter(res[f"{x0}_re"], res["y_re"], s=size, alpha=alpha, color="#2a6f97", linewidths=0)
-    order = np.argsort(res[f"{x0}_re"].to_numpy())
-    if len(f.x_names) == 1:
-        ax[1].plot(res[f"{x0}_re"].to_numpy()[order], res["fitted"].to_numpy()[order], color="#c8553d")
-    ax[1].set_xlabel(f"{f.x_expr.label} of {x0}")
-    ax[1].set_ylabel(f"{f.y_expr.label} of {a.y_name}")
-    ax[1].set_title("After re-expression, with the fitted line")
-    fig.tight_layout()
-    p = os.path.join(folder, "before_after.png")
-    atomic_save(lambda t: fig.savefig(t, dpi=110, format="png", metadata=meta), p)
-    paths.append(p)
-
-    fig, ax = subplots(figsize=(6.5, 4.2))
-    ax.scatter(res["fitted"], res["residual"], s=size, alpha=alpha, color="#2a6f97", linewidths=0)
-    ax.axhline(0, color="#888888", lw=1)
-    ax.set_xlabel("fitted value (re-expressed scale)")
-    ax.set_ylabel("residual")
-    ax.set_title("Residuals against fitted: a curve or a fan means the line does not hold")
-    ax.title.set_fontsize(10)
-    fig.tight_layout()
-    p = os.path.join(folder, "residuals.png")
-    atomic_save(lambda t: fig.savefig(t, dpi=110, format="png", metadata=meta), p)
-    paths.append(p)
-
-    t = a.scan
-    yr = list(dict.fromkeys(t.sort_values("y_power", ascending=False)["y_power"]))
-    xr = list(dict.fromkeys(t.sort_values("x_power", ascending=False)["x_power"]))
-    grid = np.full((len(yr), len(xr)), np.nan)
-    mark = np.full((len(yr), len(xr)), "", dtype=object)
-    for row in t.itertuples(index=False):
-        i, j = yr.index(row.y_power), xr.index(row.x_power)
-        grid[i, j] = row.loglik
-        if row.verdict.startswith("not possible"):
-            mark[i, j] = "n/a"
-        elif "curve" in row.verdict or "drift" in row.verdict:
-            mark[i, j] = "bends"
-        elif "fan" in row.verdict:
-            mark[i, j] = "fans"
-        else:
-            mark[i, j] = "ok"
-        if row.rank == 1:
-            mark[i, j] = "best"
-    fig, ax = subplots(figsize=(7, 5))
-    im = ax.imshow(grid, cmap="viridis", aspect="auto")
-    ax.set_xticks(range(len(xr)), [unbend.rung_label(v) for v in xr], rotation=30, ha="right")
-    ax.set_yticks(range(len(yr)), [unbend.rung_label(v) for v in yr])
-    ax.set_xlabel("x rung")
-    ax.set_ylabel("y rung")
-    finite = grid[np.isfinite(grid)]
-    lo_, hi_ = (finite.min(), finite.max()) if finite.size else (0.0, 1.0)
-    for i in range(len(yr)):
-        for j in range(len(xr)):
-            bright = np.isfinite(grid[i, j]) and hi_ > lo_ and (grid[i, j] - lo_) / (hi_ - lo_) > 0.7
-            ax.text(j, i, mark[i, j], ha="center", va="center", color="black" if bright else "white",
-                    fontsize=9, fontweight="bold" if mark[i, j] == "best" else "normal")
-    fig.colorbar(im, ax=ax, label="log-likelihood (higher is better)")
-    ax.set_title("Scan of rungs: likelihood, and what the residual checks say")
-    fig.tight_layout()
-    p = os.path.join(folder, "scan.png")
-    atomic_save(lambda t_: fig.savefig(t_, dpi=110, format="png", metadata=meta), p)
-    paths.append(p)
-    return paths
+    return draw(plot_data(a), folder)

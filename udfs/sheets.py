@@ -9,6 +9,8 @@ import numpy as np
 from openpyxl.styles import Alignment, Font, PatternFill
 from openpyxl.utils import get_column_letter
 
+from .outputs import atomic_save  # noqa: F401  (kept here for the writers that import it from sheets)
+
 __all__ = [
     "put",
     "put_text",
@@ -143,34 +145,6 @@ def same_file(a, b) -> bool:
     except OSError:
         pass
     return os.path.realpath(os.fspath(a)) == os.path.realpath(os.fspath(b))
-
-
-def atomic_save(save, path) -> str:
-    """Call ``save(tmp_path)`` then move the file into place in one step.
-
-    The temporary file sits in the target folder so the final rename never
-    crosses file systems; on failure it is removed and ``path`` is untouched.
-    """
-    path = os.fspath(path)
-    folder = os.path.dirname(os.path.abspath(path))
-    os.makedirs(folder, exist_ok=True)
-    fd, tmp = tempfile.mkstemp(prefix=".unbend-", suffix=os.path.splitext(path)[1], dir=folder)
-    os.close(fd)
-    try:
-        save(tmp)
-        umask = os.umask(0)
-        os.umask(umask)
-        os.chmod(tmp, 0o666 & ~umask)
-        os.replace(tmp, path)
-    except OSError as e:
-        if os.path.exists(tmp):
-            os.unlink(tmp)
-        raise OSError(e.errno, e.strerror or str(e), path) from None
-    except BaseException:
-        if os.path.exists(tmp):
-            os.unlink(tmp)
-        raise
-    return path
 
 
 def scatter_chart(ws, title, xref, yref, xlabel, ylabel, anchor, *, height=9.0, width=16.0):
