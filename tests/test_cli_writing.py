@@ -512,11 +512,23 @@ def test_help_imports_nothing_heavy_and_answers_quickly():
 
 
 # ----------------------------------------------------------------------------- every option a message names exists
-def test_every_option_named_in_a_message_exists():
-    assert MESSAGES, "run the other tests of this module first (pytest runs them in file order)"
+def test_every_option_named_in_a_message_exists(zero_counts, negative_x, pinned, tmp_path):
+    """Every --option a message or note names is an option of the command (the notes and refusals above,
+    and the ones made here, so the test stands on its own)."""
+    texts = [zero_counts["out"], negative_x["out"], pinned["out"]] + MESSAGES
+    src = negative_x["src"]
+    existing = tmp_path / "old.xlsx"
+    existing.write_bytes(b"old")
+    for extra in (["--x-power", "0"], ["--y-power", "-0.5", "--x-start", "6"], ["--level", "0"],
+                  ["--out", existing], ["--out", tmp_path / "r.csv"]):
+        argv = ["report", src, "--y", "load", "--x", "temp", "--quiet"] + extra
+        if "--out" not in extra:
+            argv += ["--out", tmp_path / "r.xlsx"]
+        code, out, err = run_main(argv)
+        texts += [out, err]
     opts = all_options()
     named = set()
-    for m in MESSAGES:
+    for m in texts:
         named.update(OPTION.findall(m))
-    assert named, "no message named an option"
+    assert {"--y-start", "--x-start", "--x-power", "--overwrite", "--out", "--level"} <= named
     assert named <= opts, named - opts
