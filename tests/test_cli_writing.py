@@ -307,6 +307,29 @@ def test_overwrite_replaces_workbook_and_plots(small, tmp_path):
     assert not [p for p in tmp_path.iterdir() if p.name.startswith(".")]  # no staging folder or lock file left
 
 
+def test_a_failed_move_puts_the_earlier_files_back(small, tmp_path, monkeypatch):
+    """The last move (the workbook) fails as a file held open would: the plots already moved go back."""
+    from unbend.udfs import outputs
+
+    out = tmp_path / "r.xlsx"
+    out.write_bytes(b"an earlier report")
+    (tmp_path / "r_plots").mkdir()
+    for p in PLOTS:
+        (tmp_path / "r_plots" / p).write_bytes(b"earlier " + p.encode())
+
+    def refuse(src, dst):
+        raise PermissionError(13, "Permission denied", dst)
+
+    monkeypatch.setattr(outputs, "_move_no_replace", refuse)
+    code, o, e = run_main(["report", small, "--y", "load", "--x", "temp", "--out", out, "--overwrite", "--quiet"])
+    remember(o, e)
+    line = one_line(code, o, e)
+    assert "nothing was changed" in line
+    assert out.read_bytes() == b"an earlier report"
+    assert [(tmp_path / "r_plots" / p).read_bytes() for p in PLOTS] == [b"earlier " + p.encode() for p in PLOTS]
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["r.xlsx", "r_plots"]
+
+
 def test_read_only_report_is_never_replaced(small, tmp_path):
     out = tmp_path / "r.xlsx"
     out.write_bytes(b"a read-only report")

@@ -45,9 +45,10 @@ Locks and renames, by system
   A lock file still open by a waiting run cannot be deleted; it is left for
   that run to delete.
 
-Not covered: a crash *between* the plots move and the workbook move leaves
-the new plots with the earlier workbook (or with none); the staging folder of
-a killed run stays behind as a hidden ``.unbend-...`` folder.
+If a move fails (a full disk, a file held open), the moves already made are
+undone and the message says nothing was changed. Not covered: a process
+killed *between* two moves leaves them half done (the earlier files then sit
+in its staging folder, a hidden ``.unbend-...`` folder beside the target).
 """
 from __future__ import annotations
 
@@ -177,6 +178,12 @@ class ReportFiles:
     def publish(self) -> tuple[str, list]:
         """Move the staged plots and then the workbook into place, under the target's lock.
 
+        With overwrite, the earlier workbook and plots are first set aside into
+        the staging folder (the workbook first: a workbook open in a
+        spreadsheet program on Windows cannot be moved, and then nothing has
+        changed yet). If any move fails, the moves already made are undone in
+        reverse order, so the target is left as it was.
+
         Returns
         -------
         (workbook path, list of plot paths)
@@ -186,22 +193,42 @@ class ReportFiles:
             raise OutputError("internal: the staged report is incomplete; nothing was put in place.")
         with target_lock(self.workbook):
             self.check_targets()
+            done = []  # (from, to) of every move made, to undo them if a later one fails
+
+            def move(src, dst, replace_ok=True):
+                if replace_ok:
+                    os.replace(src, dst)
+                else:
+                    _move_no_replace(src, dst)
+                done.append((src, dst))
+
             try:
+                if self.overwrite:
+                    old = os.path.join(self.stage, "earlier")
+                    os.mkdir(old)
+                    if os.path.lexists(self.workbook):
+                        move(self.workbook, os.path.join(old, "report.xlsx"))
+                    for p in self.plot_names:
+                        if os.path.lexists(os.path.join(self.plots, p)):
+                            move(os.path.join(self.plots, p), os.path.join(old, p))
                 if not os.path.lexists(self.plots):
-                    os.rename(self.staged_plots, self.plots)  # the whole folder in one step
+                    move(self.staged_plots, self.plots)  # the whole folder in one step
                 else:
                     for p in self.plot_names:
-                        os.replace(os.path.join(self.staged_plots, p), os.path.join(self.plots, p))
-                if self.overwrite:
-                    os.replace(self.staged_workbook, self.workbook)
-                else:
-                    _move_no_replace(self.staged_workbook, self.workbook)
-            except FileExistsError:
-                raise OutputError(f"{self.workbook} appeared while this report was being written; it was kept. "
-                                  "Add --overwrite to replace it, or choose another --out.") from None
-            except PermissionError as e:
-                raise OutputError(f"cannot replace {e.filename or self.workbook} ({_why(e)}); if it is open in a "
-                                  "spreadsheet program, close it and run again, or choose another --out.") from None
+                        move(os.path.join(self.staged_plots, p), os.path.join(self.plots, p))
+                move(self.staged_workbook, self.workbook, replace_ok=False)  # last: its plots are in place
+            except OSError as e:
+                for src, dst in reversed(done):
+                    try:
+                        os.replace(dst, src)
+                    except OSError:
+                        pass
+                if isinstance(e, FileExistsError):
+                    raise OutputError(f"{self.workbook} appeared while this report was being written; it was "
+                                      "kept. Add --overwrite to replace it, or choose another --out.") from None
+                raise OutputError(f"cannot put the report in place at {e.filename or self.workbook} ({_why(e)}); "
+                                  "nothing was changed. If the file is open in a spreadsheet program, close it "
+                                  "and run again, or choose another --out.") from None
         return self.workbook, [os.path.join(self.plots, p) for p in self.plot_names]
 
 

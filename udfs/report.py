@@ -1,7 +1,6 @@
 """The report: one analysis of y against x written as a workbook and PNG plots."""
 from __future__ import annotations
 
-import os
 import uuid
 from dataclasses import dataclass, field
 
@@ -13,6 +12,7 @@ from unbend import DomainError, UnbendError
 from unbend.fitting import CAUTION
 
 from . import cells
+from .plots import PLOT_FILES  # noqa: F401  (the plot files write_plots writes, in its folder)
 from .sheets import GENERAL, P_FORMAT, SMART, atomic_save
 from .xlsx import Book, Column, Style
 from .wording import PREDICTION_HELP, SCAN_HEADERS, SCAN_HELP, prediction_headers
@@ -20,7 +20,6 @@ from .wording import PREDICTION_HELP, SCAN_HEADERS, SCAN_HELP, prediction_header
 __all__ = ["Analysis", "analyse", "summary_lines", "write_report", "write_plots"]
 
 
-from .plots import PLOT_FILES  # noqa: E402  (the plot files write_plots writes, in its folder)
 
 
 @dataclass
