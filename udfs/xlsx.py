@@ -154,6 +154,13 @@ def _worksheet_class():
             super().__init__()
             self._unbend_blocks = []  # (first_row0, last_row0, renderer)
 
+        def _get_range_data(self, row_start, col_start, row_end, col_end):
+            # a chart over a row block gets no cached copy of its points (as in XlsxWriter's constant_memory
+            # mode): spreadsheet programs draw charts from the cells
+            if any(r0 <= row_end and row_start <= r1 for r0, r1, _ in self._unbend_blocks):
+                return ()
+            return super()._get_range_data(row_start, col_start, row_end, col_end)
+
         def _write_rows(self):
             if not self._unbend_blocks:
                 return super()._write_rows()
