@@ -145,3 +145,22 @@ def test_model_sheet_recalculates_to_the_engine(big_report, recalculated, ref):
             if math.isfinite(ev):
                 assert sv == pytest.approx(ev, rel=1e-9), (col, sv, ev)
         assert s["outside"] == ("yes" if e["outside_range"] else "no")
+
+
+def test_report_sheets_print_landscape_one_page_wide(big_report):
+    wb = openpyxl.load_workbook(big_report["path"], read_only=False)
+    assert wb.sheetnames == ["Summary", "Scan", "Fit", "Residuals", "Model in formulas"]
+    for ws in wb.worksheets:
+        assert ws.page_setup.orientation == "landscape", ws.title
+        assert ws.sheet_properties.pageSetUpPr.fitToPage, ws.title
+        # fitToWidth left out means 1 (ECMA-376 Part 1, 18.3.1.63, default 1; from memory)
+        assert (ws.page_setup.fitToWidth or 1, ws.page_setup.fitToHeight) == (1, 0), ws.title
+    assert "$A$1:$I$" in str(wb["Model in formulas"].print_area)
+    assert len(wb["Residuals"]._charts) == 3
+    # number formats survive: p-values, and four-significant-digit formats chosen by size
+    scan = wb["Scan"]
+    head = [c.value for c in scan[4]]
+    j = head.index("curvature p") + 1
+    assert scan.cell(5, j).number_format == '[<0.0001]"<0.0001";0.0000'
+    res = wb["Residuals"]
+    assert res.cell(3, 2).number_format in ("#,##0", "0.0", "0.000", "0.00000", "0.00E+00")

@@ -138,6 +138,21 @@ def run_once(args) -> tuple[float, float, int, float]:
     return wall, max(usage.ru_maxrss / 1024.0, peak[0]), proc.returncode, usage.ru_utime + usage.ru_stime
 
 
+def check_report(path: Path, n: int) -> None:
+    """The full report: every row in the residual table and in the model sheet's data table."""
+    import re
+    import zipfile
+
+    with zipfile.ZipFile(path) as z:
+        tables = [z.read(t).decode() for t in z.namelist() if t.startswith("xl/tables/")]
+        names = z.namelist()
+    data = [re.search(r'ref="A(\d+):G(\d+)"', t) for t in tables if 'displayName="UnbendData' in t]
+    if len(data) != 1 or int(data[0].group(2)) - int(data[0].group(1)) < n:
+        raise SystemExit(f"the model sheet does not hold all {n} rows")
+    if sum(1 for nm in names if nm.startswith("xl/charts/chart")) != 3:
+        raise SystemExit("the report lacks its three charts")
+
+
 def bench_report(n: int, repeat: int) -> dict:
     data, how = make_data(n)
     out_dir = Path(tempfile.mkdtemp(prefix="unbend-bench-"))
@@ -153,6 +168,7 @@ def bench_report(n: int, repeat: int) -> dict:
             peaks.append(peak)
             cpus.append(cpu)
         size = out.stat().st_size / 2**20
+        check_report(out, n)
     finally:
         shutil.rmtree(out_dir, ignore_errors=True)
     return {"n": n, "wall": statistics.median(walls), "walls": walls, "peak": max(peaks), "made_by": how,
