@@ -142,8 +142,9 @@ def test_zeros_in_y_do_not_stop_the_report(zero_counts):
     assert {row["y rung"] for row in scan} == {"square", "raw", "square root"}
     assert len(scan) == 3 * 6
     text = " ".join(r["out"].split())
-    assert "count has 2 zeros" in text or re.search(r"count has \d+ zeros", text)
-    assert "so the scan leaves out log (0), reciprocal root (-0.5) and reciprocal (-1)" in text
+    zeros = int((counts()["count"] == 0).sum())  # the numbers in the sentence, from the data
+    assert f"count has {zeros} zeros (smallest 0), so the scan leaves out log (0), reciprocal root (-0.5) and " \
+           "reciprocal (-1), which need every count above 0" in text
     m = re.search(r"add a start: --y-start ([0-9.]+)", text)
     assert m and float(m.group(1)) == 0.5  # half the gap between counts 0 and 1 (common practice: 0.5)
     assert "Power for count: not estimated" in text
@@ -178,11 +179,18 @@ def test_negatives_in_x_rank_only_the_rungs_x_allows(negative_x):
     scan = table(openpyxl.load_workbook(r["rep"])["Scan"], "rank")
     assert {row["x rung"] for row in scan} == {"raw"}  # below 0: only odd whole powers, and 1 is the one here
     text = " ".join(r["out"].split())
-    assert "temp has" in text and "value below 0" in text or "values below 0" in text
+    temp = shifted()["temp"]
+    neg, zero = int((temp < 0).sum()), int((temp == 0).sum())
+    assert f"temp has {neg} value{'s' if neg != 1 else ''} below 0 and {zero} zero (smallest -5)" in text
     m = re.search(r"add a start: --x-start ([0-9.]+)", text)
     assert m
     start = float(m.group(1))
-    assert start > 5  # the smallest temp is -5: the start must lift it above 0
+    # unbend.propose_start lifts the smallest value to half the smallest gap between distinct values above 0;
+    # the sentence gives the shortest decimal that still lifts every value above 0
+    gap = float(np.min(np.diff(np.unique(temp))))
+    proposal = 5 + gap / 2
+    shortest = next(float(f"{proposal:.{d}g}") for d in range(1, 18) if np.all(temp + float(f"{proposal:.{d}g}") > 0))
+    assert start == shortest and abs(start - proposal) < gap / 2
     code, out, err = run_main(["report", r["src"], "--y", "load", "--x", "temp", "--x-start", m.group(1),
                                "--out", r["d"] / "r2.xlsx", "--quiet"])
     remember(out, err)
