@@ -21,16 +21,22 @@ XlsxWriter does, and each block's rows where the block sits. A block column
 of formulas is written as one *shared formula* (ECMA-376 Part 1, 18.3.1.40,
 ``t="shared"``): the formula text once, in the block's first cell, and a
 reference to it in every other cell, which is how spreadsheet programs store
-a formula filled down a column. Every formula cell carries its value as
-computed by unbend, so a viewer that does not recalculate still shows the
-right numbers; spreadsheet programs recalculate on opening (XlsxWriter asks
-for a full calculation on load).
+a formula filled down a column.
+
+No formula cell carries a cached value (single formulas get an empty one).
+A cached value is what a program shows until it recalculates, and
+LibreOffice out of the box keeps cached values of .xlsx files instead of
+recalculating (XlsxWriter's default cached 0 would be shown as 0); a
+formula without a cached value is computed on opening by every spreadsheet
+program, and XlsxWriter also asks for a full calculation on load. A viewer
+that cannot calculate shows those cells blank, never a wrong number.
 
 The fast path relies on a few XlsxWriter internals (``_write_rows``,
-``_write_row``, ``_write_cell``, ``_check_dimensions``, ``fh``); the versions
-it was written against are pinned in pyproject.toml, and
-``tests/test_xlsx_writer.py`` reads the result back with openpyxl and
-recalculates it in LibreOffice.
+``_write_row``, ``_write_cell``, ``_write_empty_row``, ``_check_dimensions``,
+``_get_range_data``, ``fh``, a table's ``range``/``a_range``/``autofilter``
+entries and ``Format._get_xf_index``); the versions it was written against
+are pinned in pyproject.toml, and ``tests/test_xlsx_writer.py`` reads the
+result back with openpyxl and recalculates it in LibreOffice.
 
 Text is always written as text (``write_string``), never as a formula,
 whatever it starts with.
@@ -286,9 +292,10 @@ class Sheet:
         self.ws.write_blank(row - 1, col - 1, None, self.book.fmt(style))
 
     def formula(self, row, col, text: str, style: Style | None = None, value=None):
+        """A formula; ``value`` is the cached result to store (default: none, so every program computes it)."""
         if not text.startswith("="):
             raise AssertionError("formula text must start with '='")
-        v = 0 if value is None else value
+        v = "" if value is None else value
         if isinstance(v, float) and not math.isfinite(v):
             v = ""
         self.ws.write_formula(row - 1, col - 1, text, self.book.fmt(style), v)
