@@ -505,28 +505,6 @@ def test_python_m_unbend_without_the_spreadsheet_side_says_so():
     assert "spreadsheet side" in r.stderr and "unbend.udfs" in r.stderr and "Traceback" not in r.stderr
 
 
-# ----------------------------------------------------------------------------- plots in a helper process
-def test_plots_from_the_helper_process_are_the_plots_drawn_here(tmp_path):
-    import pandas as pd
-
-    from unbend.udfs.plots import PlotWorker, draw, plot_data
-    from unbend.udfs.report import analyse
-
-    a = analyse(pd.DataFrame(shifted(40, seed=4)), "load", ["temp"], x_start=6.0)
-    w = PlotWorker()
-    try:
-        w.draw(plot_data(a), tmp_path / "helper")
-        got = w.result(timeout=300)
-    finally:
-        w.close()
-    if (os.cpu_count() or 1) >= 2:
-        assert not w.drawn_here
-    here = draw(plot_data(a), tmp_path / "here")
-    assert [Path(p).name for p in got] == [Path(p).name for p in here] == PLOTS
-    for p, q in zip(got, here):
-        assert Path(p).read_bytes() == Path(q).read_bytes()
-
-
 # ----------------------------------------------------------------------------- start-up
 def test_help_imports_nothing_heavy_and_answers_quickly():
     probe = ("import sys, time; t = time.perf_counter(); from unbend.udfs import cli; cli.build_parser(); "

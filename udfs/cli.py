@@ -166,27 +166,22 @@ def _out_path(args, data: str) -> str:
 
 def cmd_report(args) -> int:
     from .outputs import ReportFiles
-    from .plots import PLOT_FILES, PlotWorker
+    from .plots import PLOT_FILES
 
     prog = Progress(args.quiet)
     data = os.path.abspath(args.data)
     out = _out_path(args, data)
     choices = _model_choices(args)
     with ReportFiles(out, PLOT_FILES, overwrite=args.overwrite) as files:  # checks --out before any work
-        plots = PlotWorker()  # imports matplotlib in a helper process while this one reads and fits
-        try:
-            from .plots import plot_data
-            from .report import analyse, write_report
+        from .report import analyse, write_plots, write_report
 
-            df, ycol, xcols, gcol, source = _read_input(args, prog)
-            prog.step("choosing powers and scanning the rungs")
-            a = analyse(df, ycol, xcols, gcol, source=source, **choices)
-            plots.draw(plot_data(a), files.staged_plots)
-            prog.step("writing the report workbook and drawing the plots")
-            write_report(a, files.staged_workbook)
-            plots.result()
-        finally:
-            plots.close()
+        df, ycol, xcols, gcol, source = _read_input(args, prog)
+        prog.step("choosing powers and scanning the rungs")
+        a = analyse(df, ycol, xcols, gcol, source=source, **choices)
+        prog.step("writing the report workbook")
+        write_report(a, files.staged_workbook)
+        prog.step("drawing the plots")
+        write_plots(a, files.staged_plots)
         rep, pngs = files.publish()
     _print_summary(a)
     print("\nFiles written:")

@@ -1,13 +1,13 @@
-"""The report's PNG plots, drawn from plain arrays, in this process or in a helper process.
+"""The report's PNG plots, drawn from plain arrays.
 
 :func:`plot_data` takes what the plots need from an analysis (numbers and
-words only); :func:`draw` draws them with matplotlib's object interface and
-the Agg canvas (no pyplot, no GUI backend). The command draws in a helper
-process (:class:`PlotWorker`, started with ``spawn`` on every system) that
-imports matplotlib while the main process reads the data and runs the engine,
-and draws while the main process writes the workbook: on a machine with two
-or more cores the plots then cost almost no time. If the helper cannot start
-or fails, the plots are drawn in the main process instead.
+words only, picklable); :func:`draw` draws them with matplotlib's object
+interface and the Agg canvas (no pyplot, no GUI backend to look for, about
+a third faster to import).
+
+Drawing in a helper process while the main process writes the workbook was
+tried and measured on this project's 2-core shared machine: no faster (the
+second core was busy with other work), so the plots are drawn in process.
 
 This module imports only numpy at the top and matplotlib inside :func:`draw`.
 """
@@ -19,7 +19,7 @@ import numpy as np
 
 from .outputs import atomic_save
 
-__all__ = ["PLOT_FILES", "plot_data", "draw", "PlotWorker"]
+__all__ = ["PLOT_FILES", "plot_data", "draw"]
 
 #: The plot files :func:`draw` writes, in its folder.
 PLOT_FILES = ("before_after.png", "residuals.png", "scan.png")
@@ -130,82 +130,3 @@ def draw(d: dict, folder) -> list:
     fig.tight_layout()
     save(fig, "scan.png")
     return paths
-
-
-# ----------------------------------------------------------------------------- the helper process
-def _serve(conn) -> None:
-    """Helper process: import matplotlib at once, then draw the one job sent, and say how it went."""
-    try:
-        import matplotlib.figure  # noqa: F401  (the slow import, done while the main process works)
-        from matplotlib.backends import backend_agg  # noqa: F401
-
-        job = conn.recv()
-        if job is None:
-            return
-        data, folder = job
-        conn.send((True, draw(data, folder)))
-    except BaseException as e:  # reported to the main process, which then draws itself
-        try:
-            conn.send((False, f"{type(e).__name__}: {e}"))
-        except Exception:
-            pass
-    finally:
-        conn.close()
-
-
-class PlotWorker:
-    """Draw the plots in a helper process; :meth:`result` falls back to drawing here if that fails."""
-
-    def __init__(self):
-        self.proc = self.conn = None
-        self.drawn_here = False  # True once the plots had to be drawn in this process
-        if (os.cpu_count() or 1) < 2:
-            return  # one core: a helper would only compete with the main process
-        try:
-            import multiprocessing as mp
-
-            ctx = mp.get_context("spawn")  # a fresh interpreter: nothing inherited, the same on every system
-            self.conn, child = ctx.Pipe()
-            self.proc = ctx.Process(target=_serve, args=(child,), daemon=True, name="unbend-plots")
-            self.proc.start()
-            child.close()
-        except Exception:
-            self.close()
-
-    def draw(self, data: dict, folder) -> None:
-        """Send the job; the helper draws while the caller goes on."""
-        self.job = (data, os.fspath(folder))
-        if self.proc is not None:
-            try:
-                self.conn.send(self.job)
-                return
-            except Exception:
-                self.close()
-
-    def result(self, timeout: float = 600.0) -> list:
-        """The paths of the plots, from the helper or, if it failed, drawn here."""
-        if self.proc is not None:
-            try:
-                if self.conn.poll(timeout):
-                    ok, value = self.conn.recv()
-                    if ok:
-                        return value
-            except (EOFError, OSError):
-                pass
-            finally:
-                self.close()
-        self.drawn_here = True
-        return draw(*self.job)
-
-    def close(self) -> None:
-        if self.conn is not None:
-            try:
-                self.conn.close()
-            except Exception:
-                pass
-        if self.proc is not None:
-            self.proc.join(timeout=2)
-            if self.proc.is_alive():
-                self.proc.terminate()
-                self.proc.join(timeout=2)
-        self.proc = self.conn = None

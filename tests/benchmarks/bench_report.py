@@ -9,12 +9,11 @@ What each figure includes
   from its start to its exit (Python start-up, imports, reading the workbook, the engine, writing the
   report workbook with its model sheet, drawing the three plots, putting the files in place). Median
   of ``--repeat`` runs (default 3).
-* CPU time: user + system time of that process and the helper process that draws the plots
-  (``ru_utime + ru_stime`` from ``os.wait4``, which counts the children it waited for); on a busy
-  shared machine it stays close to what the wall time would be on an idle one with one core.
-* peak memory: the largest resident memory of the process tree (the command and its plot helper,
-  their resident sets summed, sampled every 20 ms from /proc), or the command's own ``ru_maxrss`` if
-  larger; the worst of the runs.
+* CPU time: user + system time of that process and any child it waited for (``ru_utime +
+  ru_stime`` from ``os.wait4``); on a busy shared machine it stays close to what the wall time would
+  be on an idle one.
+* peak memory: the largest resident memory of the process tree (resident sets summed, sampled every
+  20 ms from /proc), or the command's own ``ru_maxrss`` if larger; the worst of the runs.
 * `unbend --help`: wall time of a fresh process, median of 7.
 
 The data are invented (no measurements): y = 3 * x^0.6 * lognormal noise, x uniform on 1..500,
@@ -110,7 +109,7 @@ def run_once(args) -> tuple[float, float, int, float]:
     """(wall seconds, peak resident MB of the process tree, exit status, CPU seconds) of one child process.
 
     The peak is the larger of the child's own ``ru_maxrss`` and the sum of the resident sets of the child and
-    its helper processes (the plot helper), sampled every 20 ms from /proc where there is one.
+    any child processes, sampled every 20 ms from /proc where there is one.
     """
     import threading
 
