@@ -164,3 +164,15 @@ def test_report_sheets_print_landscape_one_page_wide(big_report):
     assert scan.cell(5, j).number_format == '[<0.0001]"<0.0001";0.0000'
     res = wb["Residuals"]
     assert res.cell(3, 2).number_format in ("#,##0", "0.0", "0.000", "0.00000", "0.00E+00")
+
+
+@pytest.mark.parametrize("row", [2, 4, 7])
+def test_a_single_cell_inside_a_block_is_refused(tmp_path, row):
+    """A block owns its rows: a single cell written into one (first, middle or last row) is an error, not a
+    silently duplicated row."""
+    b = Book(tmp_path / "clash.xlsx")
+    s = b.sheet("S")
+    s.block(2, 1, [Column("number", np.arange(6.0))], 6)
+    s.text(row, 1, "clash")
+    with pytest.raises(RuntimeError, match="inside a row block"):
+        b.close()

@@ -175,9 +175,10 @@ def _worksheet_class():
                           | set(self.comments))
             bi = 0
             for row_num in rows:
-                while bi < len(blocks) and blocks[bi][0] < row_num:
+                while bi < len(blocks) and blocks[bi][0] <= row_num:
                     if blocks[bi][1] >= row_num:
-                        raise RuntimeError(f"row {row_num + 1} is inside a row block and also has single cells")
+                        raise RuntimeError(f"row {row_num + 1} is inside a row block and also has single cells "
+                                           "or a row setting")
                     blocks[bi][2](self.fh)
                     bi += 1
                 cells = self.table.get(row_num)
