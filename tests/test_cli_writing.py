@@ -386,14 +386,14 @@ def test_a_folder_that_cannot_be_written_is_named(small, tmp_path):
 def _run_id_of_workbook(path) -> str:
     with zipfile.ZipFile(path) as z:
         xml = z.read("docProps/custom.xml").decode()
-    m = re.search(r'name="unbend run"[^>]*>\s*<vt:lpwstr>([0-9a-f]+)</vt:lpwstr>', xml)
+    m = re.search(r'name="unbend run"[^>]*>\s*<vt:lpwstr>([0-9a-f]{32})</vt:lpwstr>', xml)
     assert m, xml
     return m.group(1)
 
 
 def _run_id_of_png(path) -> str:
     data = Path(path).read_bytes()
-    m = re.search(rb"tEXtunbend run\x00([0-9a-f]+)", data)
+    m = re.search(rb"tEXtunbend run\x00([0-9a-f]{32})", data)  # a uuid4 in hex; the chunk CRC follows
     assert m, path
     return m.group(1).decode()
 

@@ -154,7 +154,7 @@ def _model_choices(args) -> dict:
 
 # ----------------------------------------------------------------------------- report: the command
 def _out_path(args, data: str) -> str:
-    from .sheets import same_file
+    from .outputs import same_file
 
     out = os.path.abspath(args.out) if args.out else os.path.splitext(data)[0] + "_unbend_report.xlsx"
     if not out.lower().endswith(".xlsx"):

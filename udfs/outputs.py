@@ -59,7 +59,7 @@ import stat
 import tempfile
 import time
 
-__all__ = ["OutputError", "ReportFiles", "target_lock", "plots_folder_for", "atomic_save"]
+__all__ = ["OutputError", "ReportFiles", "target_lock", "plots_folder_for", "atomic_save", "same_file"]
 
 #: How long a run waits for another run to finish putting its files in place.
 LOCK_WAIT_SECONDS = 120.0
@@ -362,3 +362,13 @@ def atomic_save(save, path) -> str:
             os.unlink(tmp)
         raise
     return path
+
+
+def same_file(a, b) -> bool:
+    """True when two paths name the same file (or would, once created)."""
+    try:
+        if os.path.exists(a) and os.path.exists(b):
+            return os.path.samefile(a, b)
+    except OSError:
+        pass
+    return os.path.realpath(os.fspath(a)) == os.path.realpath(os.fspath(b))

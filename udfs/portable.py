@@ -51,15 +51,12 @@ from pathlib import Path
 
 import numpy as np
 import pandas as pd
-from openpyxl import Workbook
-from openpyxl.cell.cell import ILLEGAL_CHARACTERS_RE
-from openpyxl.styles import Alignment
 
 import unbend
 from unbend import UnbendError
 from unbend._validation import check_level, check_power
 
-from .xlsx import Column, Style
+from .xlsx import Column, Style, clean_text
 
 __all__ = ["add_portable_sheet", "write_portable_workbook", "append_portable_rows", "read_portable",
            "CELL", "DATA_COLUMNS", "NEW_COLUMNS", "PRED_HEADER", "DATA_CAPTION"]
@@ -136,6 +133,8 @@ def _text(ws, coord: str, text, *, font=None, wrap: bool = False):
     if font is not None:
         c.font = font
     if wrap:
+        from openpyxl.styles import Alignment
+
         c.alignment = Alignment(wrap_text=True, vertical="top")
     return c
 
@@ -155,7 +154,7 @@ def _formula(ws, coord: str, text: str, *, font=None, fill=None, number_format: 
 
 
 def _clean(s: str) -> str:
-    return ILLEGAL_CHARACTERS_RE.sub("", s)[:32767]
+    return clean_text(s)
 
 
 def _data_value(v):
@@ -715,6 +714,8 @@ def write_portable_workbook(path, y, x, new_x=(), **options) -> Path:
     path = Path(path)
     if path.suffix.lower() != ".xlsx":
         raise UnbendError(f"the portable workbook is an .xlsx file; got {path.name!r}.")
+    from openpyxl import Workbook
+
     wb = Workbook()
     default = wb.active
     add_portable_sheet(wb, y, x, new_x, **options)

@@ -13,8 +13,8 @@ from unbend.fitting import CAUTION
 
 from . import cells
 from .plots import PLOT_FILES  # noqa: F401  (the plot files write_plots writes, in its folder)
-from .sheets import GENERAL, P_FORMAT, SMART, atomic_save
-from .xlsx import Book, Column, Style
+from .outputs import atomic_save
+from .xlsx import GENERAL, P_FORMAT, SMART, Book, Column, Style
 from .wording import PREDICTION_HELP, SCAN_HEADERS, SCAN_HELP, prediction_headers
 
 __all__ = ["Analysis", "analyse", "summary_lines", "write_report", "write_plots"]

@@ -9,7 +9,7 @@ import numpy as np
 from openpyxl.styles import Alignment, Font, PatternFill
 from openpyxl.utils import get_column_letter
 
-from .outputs import atomic_save  # noqa: F401  (kept here for the writers that import it from sheets)
+from .outputs import atomic_save, same_file  # noqa: F401  (kept here for the writers that import them from sheets)
 
 __all__ = [
     "put",
@@ -38,12 +38,7 @@ NOTE_FONT = Font(name=_FACE, italic=True, color="555555")
 CAUTION_FONT = Font(name=_FACE, bold=True, color="9C2A00")
 HEADER_FILL = PatternFill("solid", fgColor="E8EEF4")
 WARN_FILL = PatternFill("solid", fgColor="FBE3D6")
-#: Numbers as the spreadsheet shows them by default (no forced decimals).
-GENERAL = "General"
-#: Pick a format by the size of each number (see :func:`smart_format`).
-SMART = "smart"
-#: p-values: tiny ones as "<0.0001" rather than 0.0000.
-P_FORMAT = '[<0.0001]"<0.0001";0.0000'
+from .xlsx import GENERAL, P_FORMAT, SMART  # noqa: E402,F401  (number formats, defined once in xlsx.py)
 
 _FORMULA_START = ("=", "+", "-", "@")
 
@@ -135,16 +130,6 @@ def printable(wb):
         ws.sheet_properties.pageSetUpPr.fitToPage = True
         ws.page_setup.fitToWidth = 1
         ws.page_setup.fitToHeight = 0
-
-
-def same_file(a, b) -> bool:
-    """True when two paths name the same file (or would, once created)."""
-    try:
-        if os.path.exists(a) and os.path.exists(b):
-            return os.path.samefile(a, b)
-    except OSError:
-        pass
-    return os.path.realpath(os.fspath(a)) == os.path.realpath(os.fspath(b))
 
 
 def scatter_chart(ws, title, xref, yref, xlabel, ylabel, anchor, *, height=9.0, width=16.0):

@@ -53,6 +53,13 @@ import numpy as np
 
 __all__ = ["Style", "Book", "Sheet", "Column", "col_letter", "cell_ref"]
 
+#: Numbers as the spreadsheet shows them by default (no forced decimals).
+GENERAL = "General"
+#: Pick a format by the size of each number (see :func:`unbend.udfs.sheets.smart_format`).
+SMART = "smart"
+#: p-values: tiny ones as "<0.0001" rather than 0.0000.
+P_FORMAT = '[<0.0001]"<0.0001";0.0000'
+
 _ILLEGAL = re.compile(r"[\x00-\x08\x0b\x0c\x0e-\x1f]")
 _MAX_TEXT = 32767
 
