@@ -264,5 +264,27 @@ def _explain(e: Exception) -> int:
     return _fail(f"unexpected problem ({type(e).__name__}: {str(e)[:160]}); please report it.", EXIT_UNEXPECTED)
 
 
+def run() -> None:
+    """The console script: :func:`main`, then exit at once.
+
+    Every file is closed and in place when :func:`main` returns; tearing down
+    the interpreter (freeing pandas, matplotlib and numpy objects, stopping
+    thread pools) then takes about 0.3 s on this project's machine, a tenth of
+    a report on 10,000 rows, and does nothing the user needs. So the output is
+    flushed and the process ends without it (``os._exit``). Call :func:`main`
+    to run the command inside another program.
+    """
+    code = main()
+    _exit_now(code)
+
+
+def _exit_now(code: int) -> None:
+    try:
+        sys.stdout.flush()
+        sys.stderr.flush()
+    finally:
+        os._exit(code)
+
+
 if __name__ == "__main__":
-    sys.exit(main())
+    run()
