@@ -1,43 +1,31 @@
-"""`python -m unbend`: run the engine on built-in invented demo data and print a summary."""
+"""`python -m unbend ...`: the same as the `unbend` command.
+
+The command lives on the spreadsheet side (``unbend.udfs.cli``); the engine
+stays importable and testable without it, so it is imported only here, when
+the command runs. Without the spreadsheet side this says so and exits 2.
+"""
 from __future__ import annotations
 
 import sys
 
-import numpy as np
-import pandas as pd
-
-from . import CAUTION, fit, scan, suggest_power, suggest_x_power
-from .demo_data import INVENTED, river_sediment
-
 
 def main(argv=None) -> int:
-    d = river_sediment()
-    y, x = d["sediment_t_per_day"], d["discharge_m3s"]
-    print("unbend demo: suspended sediment (t/day) against river discharge (m3/s)")
-    print(INVENTED)
-    print()
-    sy = suggest_power(y, x)
-    sx = suggest_x_power(y, x)
-    for s in (sy, sx):
-        print(f"Power for {s.what}: estimate {s.estimate:.3f}, 95% interval {s.low:.3f} to {s.high:.3f} "
-              f"-> use {s.label} ({s.rung:g}). {s.note}")
-    t = scan(y, x)
-    print("\nScan of every pair of rungs, best first (top 5):")
-    with pd.option_context("display.width", 160, "display.max_colwidth", 50):
-        print(t.head(5)[["rank", "y_rung", "x_rung", "loglik", "curvature_p", "spread_p", "r2", "verdict"]]
-              .to_string(index=False, float_format=lambda v: f"{v:.4g}"))
-    best = t.iloc[0]
-    f = fit(y, x, y_power=best.y_power, x_power=best.x_power, x_names=["discharge"])
-    print(f"\nFit of {f.y_expr.label} y on {f.x_expr.label} x: {f.verdict}")
-    print(f.slope_reading())
-    new = np.array([5.0, 50.0, 300.0, 800.0])
-    p = f.predict(new)
-    print("\nPredicted sediment (t/day), back in original units:")
-    print(p[["discharge", "median", "mean", "low", "high", "outside_range"]]
-          .to_string(index=False, float_format=lambda v: f"{v:.4g}"))
-    print("\n" + CAUTION)
-    return 0
+    try:
+        from unbend.udfs.cli import main as command
+    except ModuleNotFoundError as e:
+        missing = e.name or "a module"
+        print(f"unbend: the unbend command needs the spreadsheet side of unbend (unbend.udfs), which cannot be "
+              f"imported here ({missing} is not installed). Install unbend with its dependencies "
+              f"(pip install unbend, or pip install -e . in a clone) and run it again.", file=sys.stderr)
+        return 2
+    return command(argv)
 
 
 if __name__ == "__main__":
-    sys.exit(main())
+    code = main()
+    try:  # as the `unbend` console script does: every file is in place, skip the slow interpreter teardown
+        sys.stdout.flush()
+        sys.stderr.flush()
+    finally:
+        import os
+        os._exit(code)

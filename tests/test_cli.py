@@ -798,19 +798,21 @@ def test_formula_like_y_cells_are_skipped_not_computed(formula_run):
 # ----------------------------------------------------------------------------- atomic write
 @pytest.fixture
 def broken_save(monkeypatch):
-    """Make every openpyxl workbook save write half a file and then fail as a full disk would."""
-    real = openpyxl.Workbook.save
+    """Make every report workbook save (XlsxWriter) write half a file and then fail as a full disk would."""
+    from unbend.udfs import xlsx
+
+    real = xlsx.Book.close
     calls = []
 
-    def save(self, filename):
-        real(self, filename)
-        size = os.path.getsize(filename)
-        with open(filename, "r+b") as fh:
+    def close(self):
+        real(self)
+        size = os.path.getsize(self.path)
+        with open(self.path, "r+b") as fh:
             fh.truncate(size // 2)
-        calls.append(filename)
-        raise OSError(errno.ENOSPC, "No space left on device", str(filename))
+        calls.append(self.path)
+        raise OSError(errno.ENOSPC, "No space left on device", str(self.path))
 
-    monkeypatch.setattr(openpyxl.Workbook, "save", save)
+    monkeypatch.setattr(xlsx.Book, "close", close)
     return calls
 
 
@@ -819,7 +821,7 @@ def test_atomic_write_keeps_an_existing_report(tmp_path, survey, broken_save):
     out = tmp_path / "rep.xlsx"
     out.write_bytes(b"an earlier report, kept as it was")
     before = sha256(out)
-    code, o, e = run_main(["report", src, "--y", "load", "--x", "discharge", "--out", out, "--quiet"])
+    code, o, e = run_main(["report", src, "--y", "load", "--x", "discharge", "--out", out, "--overwrite", "--quiet"])
     line = assert_one_line_failure(code, o, e)
     assert "space" in line
     assert broken_save, "the save was not reached"

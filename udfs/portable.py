@@ -51,15 +51,12 @@ from pathlib import Path
 
 import numpy as np
 import pandas as pd
-from openpyxl import Workbook
-from openpyxl.cell.cell import ILLEGAL_CHARACTERS_RE
-from openpyxl.styles import Alignment, Border, Font, PatternFill, Side
-from openpyxl.worksheet.datavalidation import DataValidation
-from openpyxl.worksheet.table import Table, TableStyleInfo
 
 import unbend
 from unbend import UnbendError
 from unbend._validation import check_level, check_power
+
+from .xlsx import Column, Style, clean_text
 
 __all__ = ["add_portable_sheet", "write_portable_workbook", "append_portable_rows", "read_portable",
            "CELL", "DATA_COLUMNS", "NEW_COLUMNS", "PRED_HEADER", "DATA_CAPTION"]
@@ -109,17 +106,21 @@ _NEW_HEAD = {
     "high_re": "one new y: high (re-expressed)",
 }
 
+#: Rows on a sheet (the limit of the .xlsx format).
+SHEET_ROWS = 1_048_576
+#: Rows the statistics look at when the data are fewer.
+DEFAULT_CAPACITY = 5000
+
 _RIGHT = ("median", "mean", "line_low", "line_high", "low", "high", "x_re", "fitted", "line_low_re",
           "line_high_re", "low_re", "high_re")
-_TITLE_FONT = Font(bold=True, size=15)
-_BOLD = Font(bold=True)
-_SECTION_FONT = Font(bold=True, size=12, color="1F3A5F")
-_NOTE_FONT = Font(italic=True, color="444444")
-_CAUTION_FONT = Font(bold=True, color="9C2A00")
-_INPUT_FILL = PatternFill("solid", fgColor="FFF2B3")
-_RESULT_FILL = PatternFill("solid", fgColor="E6F0E6")
-_THIN = Side(style="thin", color="999999")
-_BOX = Border(left=_THIN, right=_THIN, top=_THIN, bottom=_THIN)
+_S_TITLE = Style(bold=True, size=15)
+_S_BOLD = Style(bold=True)
+_S_SECTION = Style(bold=True, size=12, color="1F3A5F")
+_S_NOTE = Style(italic=True, color="444444")
+_S_CAUTION = Style(bold=True, color="9C2A00")
+_S_INPUT = Style(fill="FFF2B3", border="999999")
+_S_RESULT = Style(fill="E6F0E6")
+_S_HEAD = Style(bold=True, wrap=True, valign="top")
 _SHEET_BAD = re.compile(r"[\[\]:*?/\\]")
 
 
@@ -132,6 +133,8 @@ def _text(ws, coord: str, text, *, font=None, wrap: bool = False):
     if font is not None:
         c.font = font
     if wrap:
+        from openpyxl.styles import Alignment
+
         c.alignment = Alignment(wrap_text=True, vertical="top")
     return c
 
@@ -151,7 +154,7 @@ def _formula(ws, coord: str, text: str, *, font=None, fill=None, number_format: 
 
 
 def _clean(s: str) -> str:
-    return ILLEGAL_CHARACTERS_RE.sub("", s)[:32767]
+    return clean_text(s)
 
 
 def _data_value(v):
@@ -178,6 +181,25 @@ def _data_value(v):
             return v
         return f if math.isfinite(f) else None
     return str(v)
+
+
+def _data_values(values, name: str):
+    """:func:`_data_value` of every value; a float array stays a float array (NaN and infinity: blank)."""
+    if isinstance(values, np.ndarray) and values.ndim == 1 and values.dtype.kind == "f":
+        return np.where(np.isfinite(values), values, np.nan)
+    return [_data_value(v) for v in _column(values, name)]
+
+
+def _engine_numbers(vals):
+    if isinstance(vals, np.ndarray):
+        return vals
+    return [_engine_number(v) for v in vals]
+
+
+def _padded(vals, k: int):
+    if isinstance(vals, np.ndarray):
+        return np.concatenate([vals, np.full(k, np.nan)])
+    return list(vals) + [None] * k
 
 
 def _put_data(ws, coord: str, v):
@@ -363,9 +385,13 @@ def _column(values, name: str) -> list:
     return list(arr.ravel())
 
 
-def _sheet_title(title: str) -> str:
-    t = _SHEET_BAD.sub(" ", _clean(str(title))).strip().strip("'").strip()
-    return (t or "Portable prediction")[:31]
+def _sheet_title(title: str, taken=()) -> str:
+    t = (_SHEET_BAD.sub(" ", _clean(str(title))).strip().strip("'").strip() or "Portable prediction")[:31]
+    base, k = t, 1
+    while t.lower() in {n.lower() for n in taken}:  # XlsxWriter refuses a name twice; openpyxl renames itself
+        k += 1
+        t = f"{base[:31 - len(str(k)) - 1]} {k}"
+    return t
 
 
 def _label_name(name, default: str) -> str:
@@ -374,7 +400,10 @@ def _label_name(name, default: str) -> str:
 
 
 def _unique_table_name(wb, stem: str) -> str:
-    taken = {t.lower() for ws in wb.worksheets for t in ws.tables.keys()}
+    if hasattr(wb, "table_names"):  # a workbook being written with XlsxWriter
+        taken = wb.table_names()
+    else:
+        taken = {t.lower() for ws in wb.worksheets for t in ws.tables.keys()}
     k = 1
     while f"{stem}{k}".lower() in taken:
         k += 1
@@ -385,13 +414,15 @@ def _unique_table_name(wb, stem: str) -> str:
 def add_portable_sheet(workbook, y, x, new_x=(), *, y_power=1.0, x_power=1.0, y_start=0.0, x_start=0.0,
                        level=0.95, title: str = "Portable prediction", y_name: str = "y", x_name: str = "x",
                        invented_data: bool = False, spare_rows: int = 20, spare_new_rows: int = 10,
-                       capacity: int = 5000):
+                       capacity: int | None = DEFAULT_CAPACITY):
     """Add a sheet holding the data, the fitted line and predictions, all as built-in spreadsheet formulas.
 
     Parameters
     ----------
-    workbook : openpyxl.Workbook
-        The workbook to add the sheet to (changed in place).
+    workbook : openpyxl.Workbook or unbend.udfs.xlsx.Book
+        The workbook to add the sheet to (changed in place): an openpyxl
+        workbook, or a new workbook being written with XlsxWriter (the report),
+        where the data rows are written as one block with shared formulas.
     y, x : array_like
         One column each, same length. Values that are not numbers are written
         as they are (text stays text) and the row is skipped by the formulas,
@@ -413,13 +444,15 @@ def add_portable_sheet(workbook, y, x, new_x=(), *, y_power=1.0, x_power=1.0, y_
     spare_rows, spare_new_rows : int
         Empty rows with formulas ready at the bottom of the data table and of
         the predictions table.
-    capacity : int
+    capacity : int or None
         How many rows from the first data row the statistics look at. Data
-        below that are ignored (the sheet says where the block ends).
+        below that are ignored (the sheet says where the block ends). None:
+        the data and spare rows, and at least 5,000, up to the sheet's own
+        limit of 1,048,576 rows.
 
     Returns
     -------
-    openpyxl.worksheet.worksheet.Worksheet
+    openpyxl.worksheet.worksheet.Worksheet or unbend.udfs.xlsx.Sheet
 
     Raises
     ------
@@ -451,21 +484,30 @@ def add_portable_sheet(workbook, y, x, new_x=(), *, y_power=1.0, x_power=1.0, y_
     xp = check_power(x_power, "x power")
     lv = check_level(level)
     ys_, xs_ = _start(y_start, "y start"), _start(x_start, "x start")
-    yv = [_data_value(v) for v in _column(y, "y")]
-    xv = [_data_value(v) for v in _column(x, "x")]
+    yv, xv = _data_values(y, "y"), _data_values(x, "x")
     nv = [_data_value(v) for v in _column(new_x, "new x")]
     if len(yv) != len(xv):
         raise UnbendError(f"y has {len(yv)} rows but x has {len(xv)}; give columns of the same length.")
-    for nm, k, lo in (("spare_rows", spare_rows, 0), ("spare_new_rows", spare_new_rows, 0), ("capacity", capacity, 3)):
+    for nm, k, lo in (("spare_rows", spare_rows, 0), ("spare_new_rows", spare_new_rows, 0)):
         if not isinstance(k, numbers.Integral) or isinstance(k, bool) or k < lo:
             raise UnbendError(f"{nm} must be a whole number of at least {lo}; got {k!r}.")
+    m_rows = len(nv) + spare_new_rows
+    first = PRED_HEADER + m_rows + 4
+    room = SHEET_ROWS - first + 1  # the sheet's own limit
+    if capacity is None:
+        capacity = min(room, max(DEFAULT_CAPACITY, len(yv) + spare_rows))
+    if not isinstance(capacity, numbers.Integral) or isinstance(capacity, bool) or capacity < 3:
+        raise UnbendError(f"capacity must be a whole number of at least 3; got {capacity!r}.")
+    if capacity > room:
+        raise UnbendError(f"capacity={capacity} rows do not fit on a sheet: the data start on row {first} and a "
+                          f"sheet has {SHEET_ROWS:,} rows, so at most {room:,}.")
     if len(yv) + spare_rows > capacity:
-        raise UnbendError(f"{len(yv)} data rows and {spare_rows} spare rows do not fit in capacity={capacity}; "
-                          "raise capacity.")
+        what = (f"the sheet's {SHEET_ROWS:,} rows" if capacity == room else f"capacity={capacity}; raise capacity")
+        raise UnbendError(f"{len(yv)} data rows and {spare_rows} spare rows do not fit in {what}.")
     if len(nv) + spare_new_rows == 0:
         raise UnbendError("give at least one new x or one spare row for new x values.")
     # the engine fits the same numbers first: clear errors now, and a sheet that opens on a valid line
-    f = unbend.fit([_engine_number(v) for v in yv], [_engine_number(v) for v in xv], y_power=yp, x_power=xp,
+    f = unbend.fit(_engine_numbers(yv), _engine_numbers(xv), y_power=yp, x_power=xp,
                    y_start=ys_, x_start=xs_, level=lv)
     tab = f.residuals
     fy, fyre, fxre = _digits(_typical(tab["y"])), _digits(_typical(tab["y_re"])), _digits(_typical(tab["x_re"]))
@@ -479,30 +521,35 @@ def add_portable_sheet(workbook, y, x, new_x=(), *, y_power=1.0, x_power=1.0, y_
                "r2": "0.0000", "x_mean": fxre, "sxx": _digits(float(np.sum((tab["x_re"] - tab["x_re"].mean()) ** 2))),
                "t": "0.0000", "smear": "0.000000", "x_min": fx, "x_max": fx}
 
-    ws = workbook.create_sheet(_sheet_title(title))
+    from .xlsx import Book
+    if isinstance(workbook, Book):
+        sh = workbook.sheet(_sheet_title(title, workbook.sheet_names()))
+        native = sh
+    else:
+        from .sheets import OpenpyxlSheet
+        native = workbook.create_sheet(_sheet_title(title))
+        sh = OpenpyxlSheet(native)
     yname, xname = _label_name(y_name, "y"), _label_name(x_name, "x")
-    m_rows = len(nv) + spare_new_rows
     n_rows = len(yv) + spare_rows
-    data_header = PRED_HEADER + m_rows + 3
-    first = data_header + 1
+    data_header = first - 1
     last = first + capacity - 1
 
     # heading, what the sheet is, cautions
-    _text(ws, "A1", title, font=_TITLE_FONT)
-    _wide(ws, 2, "A straight line fitted after re-expressing y and x by powers, with predictions taken back to the "
+    sh.text(1, 1, title, _S_TITLE)
+    _wide(sh, 2, "A straight line fitted after re-expressing y and x by powers, with predictions taken back to the "
                  "original units. Every number is a spreadsheet formula: change a yellow cell, the data or a new "
                  "x, and everything recalculates. No add-in is needed.")
-    _wide(ws, 3, "Caution: " + unbend.CAUTION, font=_CAUTION_FONT)
+    _wide(sh, 3, "Caution: " + unbend.CAUTION, style=_S_CAUTION)
     if invented_data:
-        _wide(ws, 4, "The data in this sheet are invented for illustration; they describe no real measurements.",
-              font=_NOTE_FONT)
-    _wide(ws, 5, f"To add data, type y and x in the empty rows at the bottom of the data table (row {first + len(yv)} "
+        _wide(sh, 4, "The data in this sheet are invented for illustration; they describe no real measurements.",
+              style=_S_NOTE)
+    _wide(sh, 5, f"To add data, type y and x in the empty rows at the bottom of the data table (row {first + len(yv)} "
                  f"onwards; their formulas are ready). For more rows, copy the last table row down. Rows that are "
                  f"blank, or have text in y or x, are skipped. The statistics look at rows {first} to {last}.",
-          font=_NOTE_FONT)
+          style=_S_NOTE)
 
     # settings
-    _text(ws, "A7", "Settings you can change (yellow cells)", font=_SECTION_FONT)
+    sh.text(7, 1, "Settings you can change (yellow cells)", _S_SECTION)
     settings = [
         ("y_power", "y power", yp, "1 = raw, 0.5 = square root, 0 = log, -0.5 = reciprocal root, "
                                    "-1 = reciprocal, 2 = square"),
@@ -512,33 +559,25 @@ def add_portable_sheet(workbook, y, x, new_x=(), *, y_power=1.0, x_power=1.0, y_
         ("level", "interval level", lv, "0.95 gives 95% intervals"),
     ]
     for key, label, value, hint in settings:
-        coord = CELL[key]
-        r = int(coord[1:])
-        _text(ws, f"A{r}", label, font=_BOLD)
-        c = ws[coord]
-        c.value = float(value)
-        c.fill = _INPUT_FILL
-        c.border = _BOX
-        _text(ws, f"C{r}", hint, font=_NOTE_FONT)
-    _text(ws, "A13", "y measures", font=_BOLD)
-    _text(ws, CELL["y_name"], yname)
-    _text(ws, "A14", "x measures", font=_BOLD)
-    _text(ws, CELL["x_name"], xname)
-    dv_pow = DataValidation(type="decimal", operator="between", formula1="-100", formula2="100", allow_blank=False,
-                            showErrorMessage=True, errorTitle="Power",
-                            error="A power is a number between -100 and 100 (0 means log).")
-    dv_pow.add(CELL["y_power"])
-    dv_pow.add(CELL["x_power"])
-    dv_lv = DataValidation(type="decimal", operator="between", formula1="0.0001", formula2="0.9999",
-                           allow_blank=False, showErrorMessage=True, errorTitle="Level",
-                           error="The level is a number between 0 and 1, such as 0.95.")
-    dv_lv.add(CELL["level"])
-    ws.add_data_validation(dv_pow)
-    ws.add_data_validation(dv_lv)
+        r, c = _rc(CELL[key])
+        sh.text(r, 1, label, _S_BOLD)
+        sh.number(r, c, float(value), _S_INPUT)
+        sh.text(r, 3, hint, _S_NOTE)
+    sh.text(13, 1, "y measures", _S_BOLD)
+    sh.text(*_rc(CELL["y_name"]), yname)
+    sh.text(14, 1, "x measures", _S_BOLD)
+    sh.text(*_rc(CELL["x_name"]), xname)
+    for key in ("y_power", "x_power"):
+        sh.validation(*_rc(CELL[key]), {"validate": "decimal", "criteria": "between", "minimum": -100,
+                                        "maximum": 100, "ignore_blank": False, "error_title": "Power",
+                                        "error_message": "A power is a number between -100 and 100 (0 means log)."})
+    sh.validation(*_rc(CELL["level"]), {"validate": "decimal", "criteria": "between", "minimum": 0.0001,
+                                        "maximum": 0.9999, "ignore_blank": False, "error_title": "Level",
+                                        "error_message": "The level is a number between 0 and 1, such as 0.95."})
 
     # the line
-    _text(ws, "A16", "The line, on the re-expressed scale:  re-expressed y = intercept + slope \u00d7 re-expressed x",
-          font=_SECTION_FONT)
+    sh.text(16, 1, "The line, on the re-expressed scale:  re-expressed y = intercept + slope \u00d7 re-expressed x",
+            _S_SECTION)
     summary = [
         ("slope", "slope", "change in re-expressed y for each 1 more of re-expressed x"),
         ("intercept", "intercept", "re-expressed y where re-expressed x is 0"),
@@ -556,14 +595,13 @@ def add_portable_sheet(workbook, y, x, new_x=(), *, y_power=1.0, x_power=1.0, y_
     ]
     sf = _summary_formulas(first, last)
     for key, label, hint in summary:
-        coord = CELL[key]
-        r = int(coord[1:])
-        _text(ws, f"A{r}", label, font=_BOLD)
-        _formula(ws, coord, sf[key], fill=_RESULT_FILL, number_format=sum_fmt.get(key))
-        _text(ws, f"C{r}", hint, font=_NOTE_FONT)
+        r, c = _rc(CELL[key])
+        sh.text(r, 1, label, _S_BOLD)
+        sh.formula(r, c, sf[key], _S_RESULT.with_(num_format=sum_fmt.get(key)), value="")
+        sh.text(r, 3, hint, _S_NOTE)
 
     # how to read the predictions
-    _text(ws, "A30", "How to read the predictions", font=_SECTION_FONT)
+    sh.text(30, 1, "How to read the predictions", _S_SECTION)
     reading = [
         "typical y: the line taken back to original units; about half of new y values are expected below it "
         "(a median).",
@@ -578,60 +616,66 @@ def add_portable_sheet(workbook, y, x, new_x=(), *, y_power=1.0, x_power=1.0, y_
         "against x) before relying on any of this.",
     ]
     for i, line in enumerate(reading):
-        _wide(ws, 31 + i, "\u2022 " + line)
+        _wide(sh, 31 + i, "\u2022 " + line)
 
     # predictions table
     cap = (f'="Predictions at new x ("&ROUND({_abs(CELL["level"])}*100,4)&"% intervals): '
            f'type new x values in column A"')
-    _formula(ws, f"A{PRED_HEADER - 1}", cap, font=_SECTION_FONT)
-    for key, col in NEW_COLUMNS.items():
-        _text(ws, f"{col}{PRED_HEADER}", _NEW_HEAD[key], font=_BOLD, wrap=True)
+    sh.formula(PRED_HEADER - 1, 1, cap, _S_SECTION, value="")
+    new_keys = list(NEW_COLUMNS)
+    for j, key in enumerate(new_keys):
+        sh.text(PRED_HEADER, _col(NEW_COLUMNS[key]), _NEW_HEAD[key], _S_HEAD)
     for i in range(m_rows):
         r = PRED_HEADER + 1 + i
+        cnew = _col(NEW_COLUMNS["new_x"])
         if i < len(nv):
-            _put_data(ws, f"{NEW_COLUMNS['new_x']}{r}", nv[i])
-        ws[f"{NEW_COLUMNS['new_x']}{r}"].number_format = fx
+            sh.value(r, cnew, nv[i], Style(num_format=fx))
+        else:
+            sh.blank(r, cnew, Style(num_format=fx))
         for key, text in _new_formulas(r, first, last).items():
-            c = _formula(ws, f"{NEW_COLUMNS[key]}{r}", text, number_format=new_fmt.get(key))
-            if key in _RIGHT:
-                c.alignment = Alignment(horizontal="right")
+            st = Style(num_format=new_fmt.get(key), halign="right" if key in _RIGHT else None)
+            sh.formula(r, _col(NEW_COLUMNS[key]), text, st, value="")
     pred_last = PRED_HEADER + m_rows
-    tnew = Table(displayName=_unique_table_name(workbook, "UnbendNewX"),
-                 ref=f"A{PRED_HEADER}:{NEW_COLUMNS['high_re']}{pred_last}")
-    tnew.tableStyleInfo = TableStyleInfo(name="TableStyleLight11", showRowStripes=True)
-    ws.add_table(tnew)
+    sh.table(PRED_HEADER, 1, pred_last, _col(NEW_COLUMNS["high_re"]), _unique_table_name(workbook, "UnbendNewX"),
+             [_NEW_HEAD[k] for k in new_keys], "TableStyleLight11", header_style=_S_HEAD)
 
-    # data table
-    _text(ws, f"A{data_header - 1}", DATA_CAPTION + " (blank rows are skipped; columns C to G are formulas)",
-          font=_SECTION_FONT)
+    # data table: y and x as given, then the working formulas, one block of rows
+    sh.text(data_header - 1, 1, DATA_CAPTION + " (blank rows are skipped; columns C to G are formulas)", _S_SECTION)
     head = {"y": "y" if yname == "y" else f"y ({yname})", "x": "x" if xname == "x" else f"x ({xname})"}
     head.update(_DATA_HEAD)
     for key, col in DATA_COLUMNS.items():
-        _text(ws, f"{col}{data_header}", head[key], font=_BOLD, wrap=True)
-    for i in range(n_rows):
-        r = first + i
-        if i < len(yv):
-            _put_data(ws, f"{DATA_COLUMNS['y']}{r}", yv[i])
-            _put_data(ws, f"{DATA_COLUMNS['x']}{r}", xv[i])
-        ws[f"{DATA_COLUMNS['y']}{r}"].number_format = fy
-        ws[f"{DATA_COLUMNS['x']}{r}"].number_format = fx
-        for key, text in _data_formulas(r).items():
-            _formula(ws, f"{DATA_COLUMNS[key]}{r}", text, number_format=data_fmt.get(key))
+        sh.text(data_header, _col(col), head[key], _S_HEAD)
+    cols = [Column("value", _padded(yv, spare_rows), Style(num_format=fy)),
+            Column("value", _padded(xv, spare_rows), Style(num_format=fx))]
+    for key in ("x_used", "y_re", "x_re", "line", "residual"):
+        cols.append(Column("formula", None, Style(num_format=data_fmt.get(key)),
+                           formula_at=lambda r, k=key: _data_formulas(r)[k]))
+    sh.block(first, 1, cols, n_rows)
     data_last = first + n_rows - 1
-    tdata = Table(displayName=_unique_table_name(workbook, "UnbendData"),
-                  ref=f"A{data_header}:{DATA_COLUMNS['residual']}{data_last}")
-    tdata.tableStyleInfo = TableStyleInfo(name="TableStyleLight9", showRowStripes=True)
-    ws.add_table(tdata)
+    sh.table(data_header, 1, data_last, _col(DATA_COLUMNS["residual"]), _unique_table_name(workbook, "UnbendData"),
+             [head[k] for k in DATA_COLUMNS], "TableStyleLight9", header_style=_S_HEAD)
 
-    _layout(ws, data_header, last)
-    return ws
+    _layout(sh, data_header, last)
+    return native
 
 
-def _wide(ws, row: int, text: str, *, font=None) -> None:
+def _col(letter: str) -> int:
+    n = 0
+    for ch in letter:
+        n = n * 26 + ord(ch) - 64
+    return n
+
+
+def _rc(coord: str) -> tuple:
+    m = re.fullmatch(r"([A-Z]+)([0-9]+)", coord)
+    return int(m.group(2)), _col(m.group(1))
+
+
+def _wide(sh, row: int, text: str, *, style=None) -> None:
     """A line of text across the printed width (columns A to I), wrapped, with room for its lines."""
-    _text(ws, f"A{row}", text, font=font, wrap=True)
-    ws.merge_cells(f"A{row}:I{row}")
-    ws.row_dimensions[row].height = 15 * max(1, math.ceil(len(text) / 185))
+    st = (style or Style()).with_(wrap=True, valign="top")
+    sh.merge(row, 1, 9, text, st)
+    sh.height(row, 15 * max(1, math.ceil(len(text) / 185)))
 
 
 def _start(v, name: str) -> float:
@@ -644,18 +688,14 @@ def _start(v, name: str) -> float:
     return s
 
 
-def _layout(ws, data_header: int, last: int) -> None:
+def _layout(sh, data_header: int, last: int) -> None:
     widths = {"A": 30, "B": 14, "C": 14, "D": 14, "E": 14, "F": 14, "G": 14, "H": 12, "I": 44,
               "J": 14, "K": 14, "L": 15, "M": 15, "N": 15, "O": 15}
     for col, w in widths.items():
-        ws.column_dimensions[col].width = w
-    ws.row_dimensions[PRED_HEADER].height = 46
-    ws.row_dimensions[data_header].height = 46
-    ws.page_setup.orientation = "landscape"
-    ws.page_setup.fitToWidth = 1
-    ws.page_setup.fitToHeight = 0
-    ws.sheet_properties.pageSetUpPr.fitToPage = True
-    ws.print_area = f"A1:I{last}"  # the whole data block, so added rows print too; J to O are working columns
+        sh.width(_col(col), w)
+    sh.height(PRED_HEADER, 46)
+    sh.height(data_header, 46)
+    sh.printable(print_area=f"A1:I{last}")  # the whole data block, so added rows print too; J to O are working
 
 
 # ----------------------------------------------------------------------------- whole workbook
@@ -674,6 +714,8 @@ def write_portable_workbook(path, y, x, new_x=(), **options) -> Path:
     path = Path(path)
     if path.suffix.lower() != ".xlsx":
         raise UnbendError(f"the portable workbook is an .xlsx file; got {path.name!r}.")
+    from openpyxl import Workbook
+
     wb = Workbook()
     default = wb.active
     add_portable_sheet(wb, y, x, new_x, **options)

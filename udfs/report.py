@@ -1,38 +1,43 @@
 """The report: one analysis of y against x written as a workbook and PNG plots."""
 from __future__ import annotations
 
-import os
+import uuid
 from dataclasses import dataclass, field
 
 import numpy as np
 import pandas as pd
-from openpyxl import Workbook
-from openpyxl.chart import Reference
-from openpyxl.styles import Alignment
 
 import unbend
-from unbend import UnbendError
+from unbend import DomainError, UnbendError
 from unbend.fitting import CAUTION
 
 from . import cells
-from .sheets import (CAUTION_FONT, GENERAL, NOTE_FONT, P_FORMAT, SMART, TITLE_FONT, WARN_FILL, atomic_save, printable,
-                     put, scatter_chart, set_widths, write_rows)
+from .plots import PLOT_FILES  # noqa: F401  (the plot files write_plots writes, in its folder)
+from .outputs import atomic_save
+from .xlsx import GENERAL, P_FORMAT, SMART, Book, Column, Style
 from .wording import PREDICTION_HELP, SCAN_HEADERS, SCAN_HELP, prediction_headers
 
 __all__ = ["Analysis", "analyse", "summary_lines", "write_report", "write_plots"]
 
 
+
+
 @dataclass
 class Analysis:
-    """Everything the report shows, computed once by the engine."""
+    """Everything the report shows, computed once by the engine.
+
+    ``suggest_y`` / ``suggest_x`` are None when the data do not allow the
+    estimate (zeros or negatives without a start); ``notes`` then say why and
+    what to type.
+    """
 
     source: str
     y_name: str
     x_names: list
     y: np.ndarray
     X: np.ndarray
-    suggest_y: unbend.PowerSuggestion
-    suggest_x: unbend.PowerSuggestion
+    suggest_y: unbend.PowerSuggestion | None
+    suggest_x: unbend.PowerSuggestion | None
     scan: pd.DataFrame
     fit: unbend.LineFit
     predictions: pd.DataFrame
@@ -42,35 +47,146 @@ class Analysis:
     #: How the data file was read (unbend.udfs.files.DataReading), when the data came from a file: its rows
     #: skipped by reason, values read from text, units and dates replace the engine's generic skipped list.
     reading: object = None
+    #: Written into the workbook's properties and every plot, so files of one run can be told apart from another's.
+    run_id: str = field(default_factory=lambda: uuid.uuid4().hex)
 
 
 def _numbers(series) -> np.ndarray:
     return cells.to_numbers(list(series), "column") if len(series) else np.array([])
 
 
+# ----------------------------------------------------------------------------- which rungs the data allow
+def _allowed(values: np.ndarray, rungs, start: float):
+    """(rungs the values allow after adding ``start``, rungs they do not)."""
+    ok, out = [], []
+    for p in rungs:
+        try:
+            unbend.Reexpression(p, start).check(values, "values")
+            ok.append(p)
+        except DomainError:
+            out.append(p)
+    return ok, out
+
+
+def _nice_start(values: np.ndarray, start: float) -> float:
+    """unbend.propose_start for the log (so every rung works), as the shortest decimal that still works."""
+    prop = unbend.propose_start(values + start, 0.0) + start
+    for d in range(1, 18):
+        cand = float(f"{prop:.{d}g}")
+        if np.all(values + cand > 0):
+            return cand
+    return prop
+
+
+def _what_is_below(values: np.ndarray, start: float, name: str) -> str:
+    v = values + start
+    neg, zero = int(np.sum(v < 0)), int(np.sum(v == 0))
+    parts = ([f"{neg} value{'s' if neg != 1 else ''} below 0"] if neg else []) + \
+            ([f"{zero} zero{'s' if zero != 1 else ''}"] if zero else [])
+    after = f" after adding the start {start:g}" if start else ""
+    return f"{name} has {' and '.join(parts)}{after} (smallest {float(values.min()):g})"
+
+
+def _left_out(values, rungs_out, start, name, opt) -> str:
+    """The sentence that says which rungs the scan left out for one variable, and the start to type."""
+    strict = [p for p in rungs_out if p <= 0]
+    loose = [p for p in rungs_out if p > 0]
+    groups = []
+    if loose:
+        groups.append(f"{_labels(loose)}, which need every {name} at 0 or above")
+    if strict:
+        groups.append(f"{_labels(strict)}, which need every {name} above 0")
+    s = _nice_start(values, start)
+    return (f"{_what_is_below(values, start, name)}, so the scan leaves out {', and '.join(groups)}. To include "
+            f"them, add a start: {opt} {s:g} (unbend's proposal, from the smallest {name} and the smallest gap "
+            f"between distinct values).")
+
+
+def _labels(powers) -> str:
+    names = [f"{unbend.rung_label(p)} ({p:g})" for p in powers]
+    return names[0] if len(names) == 1 else ", ".join(names[:-1]) + " and " + names[-1]
+
+
+def _pinned_refused(power, values, start, name, opt_power, opt_start, allowed) -> str:
+    s = _nice_start(values, start)
+    return (f"{opt_power} {power:g} ({unbend.rung_label(power)}) cannot be used: {_what_is_below(values, start, name)}. "
+            f"Add a start ({opt_start} {s:g}), or choose a power these data allow: "
+            f"{opt_power} {_or([f'{p:g}' for p in allowed])}.")
+
+
+def _or(items) -> str:
+    return items[0] if len(items) == 1 else ", ".join(items[:-1]) + " or " + items[-1]
+
+
+# ----------------------------------------------------------------------------- the analysis
 def analyse(df: pd.DataFrame, y_col: str, x_cols: list, groups_col: str | None = None, *,
-            source: str = "", invented: bool = False) -> Analysis:
-    """Run the engine over the chosen columns: suggestions, scan, fit at the best pair, predictions."""
+            source: str = "", invented: bool = False, y_power=None, x_power=None, y_start: float = 0.0,
+            x_start: float = 0.0, level: float = 0.95) -> Analysis:
+    """Run the engine over the chosen columns: suggestions, scan, fit at the best pair, predictions.
+
+    ``y_power`` / ``x_power`` pin a power (None: the pair the scan ranks
+    first); ``y_start`` / ``x_start`` are added before re-expressing;
+    ``level`` is the level of every interval. Zeros and negatives never stop
+    the analysis: the scan ranks only the rungs the data allow, and the notes
+    say which were left out and which start would bring them back.
+    """
     n = len(df)
     y = cells.to_numbers(list(df[y_col]), y_col)
     X = np.column_stack([cells.to_numbers(list(df[c]), c) for c in x_cols]) if n else np.zeros((0, len(x_cols)))
     y, X = cells.pad_rows(y, X) if X.size else (y, X)
     if y.shape[0] != X.shape[0]:
         y, X = cells.pad_rows(y, X)
-    scan = unbend.scan(y, X)
-    yp, xp = unbend.best_pair(y, X, table=scan)
-    sy = unbend.suggest_power(y, X, x_power=xp)
-    sx = unbend.suggest_x_power(y, X, y_power=yp)
     names = [str(c) for c in x_cols]
-    f = unbend.fit(y, X, y_power=yp, x_power=xp, x_names=names, y_name=str(y_col))
+    yname, xname = str(y_col), ", ".join(names)
+    ok = np.isfinite(y) & np.isfinite(X).all(axis=1)
+    yu, xu = y[ok], X[ok].ravel()
+    notes = []
+    base = tuple(unbend.LADDER)
+    y_try = base + ((y_power,) if y_power is not None and y_power not in base else ())
+    x_try = base + ((x_power,) if x_power is not None and x_power not in base else ())
+    y_ok, y_out = _allowed(yu, y_try, y_start) if yu.size else (list(y_try), [])
+    x_ok, x_out = _allowed(xu, x_try, x_start) if xu.size else (list(x_try), [])
+    if y_power is not None and y_power in y_out:
+        raise UnbendError(_pinned_refused(y_power, yu, y_start, yname, "--y-power", "--y-start", y_ok))
+    if x_power is not None and x_power in x_out:
+        raise UnbendError(_pinned_refused(x_power, xu, x_start, xname, "--x-power", "--x-start", x_ok))
+    if y_out:
+        notes.append(_left_out(yu, [p for p in y_out if p in base], y_start, yname, "--y-start"))
+    if x_out:
+        notes.append(_left_out(xu, [p for p in x_out if p in base], x_start, xname, "--x-start"))
+    scan = unbend.scan(y, X, y_start=y_start, x_start=x_start, rungs=y_ok, x_rungs=x_ok)
+    yp, xp = unbend.best_pair(y, X, y_start=y_start, x_start=x_start, y_power=y_power, x_power=x_power,
+                              table=scan)
+    sy = sx = None
+    if yu.size and np.all(yu + y_start > 0):
+        sy = unbend.suggest_power(y, X, x_power=xp, level=level, y_start=y_start, x_start=x_start)
+    else:
+        notes.append(f"Power for {yname}: not estimated, because the Box-Cox likelihood needs every {yname} above 0 "
+                     f"and {_what_is_below(yu, y_start, yname)}. With --y-start {_nice_start(yu, y_start):g} it is "
+                     "estimated; meanwhile the scan ranks the rungs these data allow.")
+    if xu.size and np.all(xu + x_start > 0):
+        sx = unbend.suggest_x_power(y, X, y_power=yp, level=level, y_start=y_start, x_start=x_start)
+    else:
+        notes.append(f"Power for {xname}: not estimated, because the likelihood over the x power needs every "
+                     f"{xname} above 0 and {_what_is_below(xu, x_start, xname)}. With --x-start "
+                     f"{_nice_start(xu, x_start):g} it is estimated; meanwhile the scan ranks the rungs these data "
+                     "allow.")
+    f = unbend.fit(y, X, y_power=yp, x_power=xp, y_start=y_start, x_start=x_start, level=level, x_names=names,
+                   y_name=yname)
     new = _prediction_points(f)
-    p = f.predict(new)
+    p = f.predict(new, level=level)
     spread = None
     if groups_col is not None:
-        spread = unbend.spread_power(y, np.array(cells.to_labels(list(df[groups_col]), groups_col)
-                                                 + [None] * max(0, y.size - len(df)), dtype=object)[: y.size])
-    return Analysis(source=source, y_name=str(y_col), x_names=names, y=y, X=X, suggest_y=sy, suggest_x=sx,
-                    scan=scan, fit=f, predictions=p, spread=spread, invented=invented)
+        labels = np.array(cells.to_labels(list(df[groups_col]), groups_col) + [None] * max(0, y.size - len(df)),
+                          dtype=object)[: y.size]
+        try:
+            spread = unbend.spread_power(y, labels, level=level, start=y_start)
+        except DomainError:
+            notes.append(f"Spread against level across groups: not estimated, because it needs every {yname} above "
+                         f"0 and {_what_is_below(yu, y_start, yname)}; with --y-start {_nice_start(yu, y_start):g} "
+                         "it is estimated.")
+    return Analysis(source=source, y_name=yname, x_names=names, y=y, X=X, suggest_y=sy, suggest_x=sx,
+                    scan=scan, fit=f, predictions=p, spread=spread, invented=invented, notes=notes)
 
 
 def _prediction_points(f) -> np.ndarray:
@@ -120,8 +236,11 @@ def summary_lines(a: Analysis) -> list:
                    + ("; ..." if len(f.skipped) > 5 else "") + ".")
     names = {"y": a.y_name, "x": ", ".join(a.x_names)}
     for s in (a.suggest_y, a.suggest_x):
+        if s is None:
+            continue
         out.append(f"Power for {names.get(s.what, s.what)}: estimate {_fmt(s.estimate)}, {s.level:.0%} interval "
                    f"{_fmt(s.low)} to {_fmt(s.high)}. Use {s.label} ({s.rung:g}): {_note(s)}")
+    out.extend(a.notes)
     top = a.scan.iloc[0]
     out.append(f"The scan of {len(a.scan)} pairs of rungs ranks {top.y_rung} of {a.y_name} with {top.x_rung} of "
                f"{names['x']} first (ranked on likelihood, with pairs whose residuals still curve pushed down; "
@@ -162,81 +281,130 @@ def _prediction_rows(a: Analysis):
 
 
 
-def _wrapped(ws, r, text, width, font=None, per_line=120):
-    c = put(ws, r, 1, text)
-    c.alignment = Alignment(wrap_text=True, vertical="top")
-    if font is not None:
-        c.font = font
-    ws.merge_cells(start_row=r, start_column=1, end_row=r, end_column=width)
-    ws.row_dimensions[r].height = 15 * max(1, len(text) // per_line + 1)
-    return c
+# ----------------------------------------------------------------------------- the workbook
+_FACE = "Liberation Sans"  # a metric match for the common sans fonts, present wherever LibreOffice is
+S_TITLE = Style(font=_FACE, bold=True, size=14)
+S_HEADER = Style(font=_FACE, bold=True, fill="E8EEF4", wrap=True, valign="bottom", halign="center")
+S_NOTE = Style(font=_FACE, italic=True, color="555555")
+S_CAUTION = Style(font=_FACE, bold=True, color="9C2A00")
+WARN = "FBE3D6"
+#: Formats chosen by the size of a number (about four significant digits), see :func:`sheets.smart_format`.
+_SMART = ["#,##0", "0.0", "0.000", "0.00000", "0.00E+00"]
 
 
-def build_report_workbook(a: Analysis) -> Workbook:
-    """The report as an openpyxl workbook (not yet saved)."""
-    f = a.fit
-    wb = Workbook()
-    ws = wb.active
-    ws.title = "Summary"
-    put(ws, 1, 1, f"unbend report: {a.y_name} against {', '.join(a.x_names)}").font = TITLE_FONT
+def _smart_index(v: np.ndarray) -> np.ndarray:
+    a = np.abs(np.asarray(v, dtype=float))
+    with np.errstate(invalid="ignore"):
+        return np.select([a >= 1000, a >= 100, (a >= 1) | (a == 0), a >= 0.001], [0, 1, 2, 3], 4)
+
+
+def _smart_style(v, base: Style | None = None) -> Style | None:
+    if not isinstance(v, (float, np.floating)) or not np.isfinite(v):
+        return base
+    return (base or Style()).with_(num_format=_SMART[int(_smart_index(np.array([v]))[0])])
+
+
+def _wrapped(sh, r, text, width, style=None, per_line=120):
+    sh.merge(r, 1, width, text, (style or Style()).with_(wrap=True, valign="top"))
+    sh.height(r, 15 * max(1, len(text) // per_line + 1))
+
+
+def _small_table(sh, top, left, header, rows, *, number_format=GENERAL, formats=None, row_formats=None,
+                 row_fill=None, text_style=None):
+    """A header row and a few data rows written cell by cell; returns the row after the last one.
+
+    ``formats`` maps a header to a number format for its column (SMART: by each
+    number's size); ``row_formats`` maps a row's first cell to a format for its
+    numbers; ``row_fill(row) -> colour or None`` shades a whole row.
+    """
+    formats = formats or {}
+    row_formats = row_formats or {}
+    longest = max((len(str(h)) for h in header), default=0)
+    for j, h in enumerate(header):
+        sh.text(top, left + j, h, S_HEADER)
+    sh.height(top, 15 * (1 + longest // 14))
+    col_fmt = [formats.get(h, number_format) for h in header]
+    r = top + 1
+    for row in rows:
+        row = list(row)
+        fill = row_fill(row) if row_fill else None
+        rf = row_formats.get(row[0]) if row else None
+        for j, v in enumerate(row):
+            if isinstance(v, np.generic):
+                v = v.item()
+            base = text_style if isinstance(v, str) else None
+            if fill:
+                base = (base or Style()).with_(fill=fill)
+            if isinstance(v, float):
+                nf = rf or (col_fmt[j] if j < len(col_fmt) else number_format)
+                st = _smart_style(v, base) if nf == SMART else (base or Style()).with_(num_format=nf)
+            else:
+                st = base
+            sh.value(r, left + j, v, st)
+        r += 1
+    return r
+
+
+def _summary_sheet(book, a):
+    sh = book.sheet("Summary")
+    sh.text(1, 1, f"unbend report: {a.y_name} against {', '.join(a.x_names)}", S_TITLE)
     header, rows = _prediction_rows(a)
     width = max(len(header), 9)
     r = 3
     for line in summary_lines(a):
-        _wrapped(ws, r, line, width, CAUTION_FONT if line.startswith(("CAUTION", "Warning")) else None)
+        _wrapped(sh, r, line, width, S_CAUTION if line.startswith(("CAUTION", "Warning")) else None)
         r += 1
     r += 1
-    _wrapped(ws, r, prediction_points_text(a) + " " + PREDICTION_HELP, width, NOTE_FONT)
+    _wrapped(sh, r, prediction_points_text(a) + " " + PREDICTION_HELP, width, S_NOTE)
     r += 1
-    top = r
-    end = write_rows(ws, r, 1, header, rows, number_format=SMART)
-    out_col = header.index("outside x range") + 1
-    for rr in range(top + 1, end):
-        if ws.cell(row=rr, column=out_col).value == "yes":
-            for cc in range(1, len(header) + 1):
-                ws.cell(row=rr, column=cc).fill = WARN_FILL
-    set_widths(ws, {j: 15 for j in range(1, width + 1)})
-    set_widths(ws, {len(header): 40})
+    out_col = header.index("outside x range")
+    _small_table(sh, r, 1, header, rows, number_format=SMART, row_fill=lambda row: WARN if row[out_col] == "yes"
+                 else None)
+    for j in range(1, width + 1):
+        sh.width(j, 15)
+    sh.width(len(header), 40)
+    return sh
 
-    # scan
-    ws2 = wb.create_sheet("Scan")
-    put(ws2, 1, 1, "Every pair of rungs, best first").font = TITLE_FONT
-    _wrapped(ws2, 2, SCAN_HELP, 13, NOTE_FONT)
-    write_rows(ws2, 4, 1, [SCAN_HEADERS[c] for c in a.scan.columns], a.scan.itertuples(index=False),
-               number_format=GENERAL, formats={"curvature p": P_FORMAT, "pattern p": P_FORMAT, "spread p": P_FORMAT,
-                                               "normality p": P_FORMAT, "R\u00b2 re-expressed": "0.0000",
-                                               "R\u00b2 original units": "0.0000",
-                                               "log-likelihood (y units)": "0.00"})
-    set_widths(ws2, {1: 7, 2: 9, 3: 9, 4: 16, 5: 16, 6: 14, 7: 12, 8: 12, 9: 12, 10: 12, 11: 13, 12: 13, 13: 52,
-                     14: 10})
 
-    # fit
-    ws3 = wb.create_sheet("Fit")
-    put(ws3, 1, 1, f"The line: {f.explain().split('. ', 1)[0][len('A straight line of '):]}").font = TITLE_FONT
-    fit_rows = f.rows() if a.reading is None else a.reading.rows.into_rows(f.rows())  # issue 9: reasons
-    write_rows(ws3, 3, 1, ["item", "value"], fit_rows, number_format=GENERAL,
-               row_formats={k: P_FORMAT for k, _ in f.rows() if k.endswith(": p") or " p (" in k})
-    for row in ws3.iter_rows(min_row=4, min_col=1, max_col=2):
-        for c in row:
-            c.alignment = Alignment(wrap_text=True, vertical="top", horizontal="left")
-            if isinstance(c.value, str) and len(c.value) > 70:
-                ws3.row_dimensions[c.row].height = 15 * (len(c.value) // 70 + 1)
-    set_widths(ws3, {1: 50, 2: 75})
+def _scan_sheet(book, a):
+    sh = book.sheet("Scan")
+    sh.text(1, 1, "Every pair of rungs, best first", S_TITLE)
+    _wrapped(sh, 2, SCAN_HELP, 13, S_NOTE)
+    _small_table(sh, 4, 1, [SCAN_HEADERS[c] for c in a.scan.columns], a.scan.itertuples(index=False),
+                 formats={"curvature p": P_FORMAT, "pattern p": P_FORMAT, "spread p": P_FORMAT,
+                          "normality p": P_FORMAT, "R\u00b2 re-expressed": "0.0000", "R\u00b2 original units": "0.0000",
+                          "log-likelihood (y units)": "0.00"})
+    for j, w in {1: 7, 2: 9, 3: 9, 4: 16, 5: 16, 6: 14, 7: 12, 8: 12, 9: 12, 10: 12, 11: 13, 12: 13, 13: 52,
+                 14: 10}.items():
+        sh.width(j, w)
 
-    # residuals with native charts
-    ws4 = wb.create_sheet("Residuals")
-    res = f.residuals.copy()
+
+def _fit_sheet(book, a):
+    f = a.fit
+    sh = book.sheet("Fit")
+    sh.text(1, 1, f"The line: {f.explain().split('. ', 1)[0][len('A straight line of '):]}", S_TITLE)
+    items = f.rows() if a.reading is None else a.reading.rows.into_rows(f.rows())  # rows skipped, by reason
+    wrap = Style(wrap=True, valign="top", halign="left")
+    _small_table(sh, 3, 1, ["item", "value"], items, text_style=wrap,
+                 row_formats={k: P_FORMAT for k, _ in items if k.endswith(": p") or " p (" in k})
+    for i, (k, v) in enumerate(items):
+        if isinstance(v, str) and len(v) > 70:
+            sh.height(4 + i, 15 * (len(v) // 70 + 1))
+    sh.width(1, 50)
+    sh.width(2, 75)
+
+
+def _residual_sheet(book, a):
+    """One row per data row used, written as one block, with three native charts beside it."""
+    f = a.fit
+    sh = book.sheet("Residuals")
+    res = f.residuals
     n = f.n
-    flags = []
-    for sd, cook in zip(res["standardized"], res["cooks_distance"]):
-        fl = []
-        if abs(sd) > 2:
-            fl.append("large residual")
-        if cook > 4.0 / n:
-            fl.append("influential")
-        flags.append(", ".join(fl))
-    res["flag"] = flags
-    if a.reading is not None:  # issue 9: rows of the sheet or file, not positions among the rows used
+    large = np.abs(res["standardized"].to_numpy(float)) > 2
+    infl = res["cooks_distance"].to_numpy(float) > 4.0 / n
+    flags = np.where(large & infl, "large residual, influential",
+                     np.where(large, "large residual", np.where(infl, "influential", ""))).tolist()
+    if a.reading is not None:  # rows of the sheet or file, not positions among the rows used
         res["row"] = a.reading.row_numbers[res["row"].to_numpy(dtype=int) - 1]
     cols = ["row", "y"] + list(f.x_names) + ["y_re"] + [f"{nm}_re" for nm in f.x_names] + \
            ["fitted", "residual", "standardized", "studentized", "leverage", "cooks_distance", "flag"]
@@ -246,136 +414,89 @@ def build_report_workbook(a: Analysis) -> Workbook:
     for nm in f.x_names:
         nice[nm] = nm
         nice[f"{nm}_re"] = f"{nm} re-expressed"
-    _wrapped(ws4, 1, ("One row per data row used (data row = the row in the data file). " if a.reading is not None
-                      else "One row per data row used (data row 1 = the first row under the header). ") +
-             "Standardized "
-                     "residuals beyond \u00b12 are flagged 'large residual'; a Cook's distance above 4/n (leverage "
-                     "times residual: how much the row moves the line) is flagged 'influential'.", len(cols), NOTE_FONT,
+    _wrapped(sh, 1, ("One row per data row used (data row = the row in the data file). " if a.reading is not None
+                     else "One row per data row used (data row 1 = the first row under the header). ") +
+             "Standardized residuals beyond \u00b12 are flagged 'large residual'; a Cook's distance above 4/n "
+             "(leverage times residual: how much the row moves the line) is flagged 'influential'.", len(cols), S_NOTE,
              per_line=150)
-    last = write_rows(ws4, 2, 1, [nice[c] for c in cols], res[cols].itertuples(index=False), number_format=SMART,
-                      formats={nice[c]: "0.0000" for c in ["residual", "standardized", "studentized", "leverage",
-                                                           "cooks_distance"]})
+    header = [nice[c] for c in cols]
+    for j, h in enumerate(header):
+        sh.text(2, 1 + j, h, S_HEADER)
+    sh.height(2, 15 * (1 + max(len(h) for h in header) // 14))
+    fixed = Style(num_format="0.0000")
+    smart = [Style(num_format=fm) for fm in _SMART]
+    block = []
+    for c in cols:
+        if c == "flag":
+            block.append(Column("text", flags))
+        elif c == "row":
+            block.append(Column("number", res["row"].to_numpy(float)))
+        elif c in ("residual", "standardized", "studentized", "leverage", "cooks_distance"):
+            block.append(Column("number", res[c].to_numpy(float), fixed))
+        else:
+            v = res[c].to_numpy(float)
+            block.append(Column("number", v, styles=smart, style_index=_smart_index(v)))
+    sh.block(3, 1, block, n)
+    last = 2 + n
     ci = {c: i + 1 for i, c in enumerate(cols)}
-    ref = lambda c: Reference(ws4, min_col=ci[c], min_row=3, max_row=last - 1)  # noqa: E731
+    rng = lambda c: (3, last, ci[c])  # noqa: E731
     x0 = f.x_names[0]
-    from openpyxl.utils import get_column_letter as L
-    anchor_col = len(cols) + 2
-    set_widths(ws4, {j: 14 for j in range(1, len(cols) + 1)})
-    set_widths(ws4, {len(cols): 24})
-    scatter_chart(ws4, "Before: original units", ref(x0), ref("y"), x0, a.y_name, f"{L(anchor_col)}2")
-    scatter_chart(ws4, f"After: {f.y_expr.label} of {a.y_name} against {f.x_expr.label} of {x0}", ref(f"{x0}_re"),
-               ref("y_re"), f"{f.x_expr.label} of {x0}", f"{f.y_expr.label} of {a.y_name}", f"{L(anchor_col)}21")
-    scatter_chart(ws4, "Residuals against fitted: look for a curve or a fan", ref("fitted"), ref("residual"),
-               "fitted (re-expressed)", "residual", f"{L(anchor_col)}40")
+    anchor = len(cols) + 2
+    for j in range(1, len(cols) + 1):
+        sh.width(j, 14)
+    sh.width(len(cols), 24)
+    sh.freeze(3, 1)
+    sh.scatter("Before: original units", rng(x0), rng("y"), x0, a.y_name, 2, anchor)
+    sh.scatter(f"After: {f.y_expr.label} of {a.y_name} against {f.x_expr.label} of {x0}", rng(f"{x0}_re"),
+               rng("y_re"), f"{f.x_expr.label} of {x0}", f"{f.y_expr.label} of {a.y_name}", 21, anchor)
+    sh.scatter("Residuals against fitted: look for a curve or a fan", rng("fitted"), rng("residual"),
+               "fitted (re-expressed)", "residual", 40, anchor)
 
+
+def _spread_sheet(book, a):
+    sh = book.sheet("Spread")
+    sh.text(1, 1, "Spread against level across groups", S_TITLE)
+    wrap = Style(wrap=True, valign="top", halign="left")
+    _small_table(sh, 3, 1, ["item", "value"], a.spread.rows(), text_style=wrap)
+    d = a.spread.detail
+    _small_table(sh, 16, 1, ["group", "n", "level (median)", "spread (IQR)", "used"],
+                 [[g, n_, lv, sp, "yes" if u else "no"] for g, n_, lv, sp, u in d.itertuples(index=False)])
+    sh.width(1, 28)
+    sh.width(2, 70)
+
+
+def build_report(a: Analysis, path) -> str:
+    """Write the report workbook to ``path`` (not atomically; see :func:`write_report`)."""
+    book = Book(path)
+    book.properties(title=f"unbend report: {a.y_name} against {', '.join(a.x_names)}",
+                    comments="Written by unbend. Check the residuals before using any number.")
+    book.custom_property("unbend run", a.run_id)
+    _summary_sheet(book, a)
+    _scan_sheet(book, a)
+    _fit_sheet(book, a)
+    _residual_sheet(book, a)
     if a.spread is not None and a.spread.detail is not None:
-        ws5 = wb.create_sheet("Spread")
-        put(ws5, 1, 1, "Spread against level across groups").font = TITLE_FONT
-        write_rows(ws5, 3, 1, ["item", "value"], a.spread.rows(), number_format=GENERAL)
-        d = a.spread.detail
-        write_rows(ws5, 16, 1, ["group", "n", "level (median)", "spread (IQR)", "used"],
-                   [[g, n_, lv, sp, "yes" if u else "no"] for g, n_, lv, sp, u in d.itertuples(index=False)],
-                   number_format=GENERAL)
-        for row in ws5.iter_rows(min_row=4, max_row=14, min_col=2, max_col=2):
-            for c in row:
-                c.alignment = Alignment(wrap_text=True, vertical="top", horizontal="left")
-        set_widths(ws5, {1: 28, 2: 70})
-
+        _spread_sheet(book, a)
+    f = a.fit
     if len(f.x_names) == 1:
         from .portable import add_portable_sheet
         new = a.predictions[f.x_names[0]].to_numpy()
-        add_portable_sheet(wb, a.y, a.X[:, 0], new, y_power=f.y_power, x_power=f.x_power,
-                           y_start=f.y_expr.start, x_start=f.x_expr.start, invented_data=a.invented,
-                           y_name=a.y_name, x_name=f.x_names[0], title="Model in formulas")
-    return wb
+        add_portable_sheet(book, a.y, a.X[:, 0], new, y_power=f.y_power, x_power=f.x_power,
+                           y_start=f.y_expr.start, x_start=f.x_expr.start, level=f.level, invented_data=a.invented,
+                           y_name=a.y_name, x_name=f.x_names[0], title="Model in formulas", capacity=None)
+    for sh in book.sheets[:-1] if len(f.x_names) == 1 else book.sheets:
+        sh.printable()
+    book.close()
+    return str(path)
 
 
 def write_report(a: Analysis, out_path) -> str:
-    """Write the report workbook atomically; returns its path."""
-    wb = build_report_workbook(a)
-    printable(wb)
-    return atomic_save(wb.save, out_path)
+    """Write the report workbook atomically (a temporary file in the same folder, then one rename)."""
+    return atomic_save(lambda tmp: build_report(a, tmp), out_path)
 
 
 def write_plots(a: Analysis, folder) -> list:
-    """PNG plots: before/after scatter, residuals against fitted, the scan as a picture."""
-    import matplotlib
-    matplotlib.use("Agg")
-    import matplotlib.pyplot as plt
+    """PNG plots: before/after scatter, residuals against fitted, the scan as a picture (see udfs/plots.py)."""
+    from .plots import draw, plot_data
 
-    os.makedirs(folder, exist_ok=True)
-    f = a.fit
-    res = f.residuals
-    x0 = f.x_names[0]
-    paths = []
-
-    fig, ax = plt.subplots(1, 2, figsize=(10, 4.2))
-    ax[0].scatter(res[x0], res["y"], s=14, color="#2a6f97")
-    ax[0].set_xlabel(x0)
-    ax[0].set_ylabel(a.y_name)
-    ax[0].set_title("Before: original units")
-    ax[1].scatter(res[f"{x0}_re"], res["y_re"], s=14, color="#2a6f97")
-    order = np.argsort(res[f"{x0}_re"].to_numpy())
-    if len(f.x_names) == 1:
-        ax[1].plot(res[f"{x0}_re"].to_numpy()[order], res["fitted"].to_numpy()[order], color="#c8553d")
-    ax[1].set_xlabel(f"{f.x_expr.label} of {x0}")
-    ax[1].set_ylabel(f"{f.y_expr.label} of {a.y_name}")
-    ax[1].set_title("After re-expression, with the fitted line")
-    fig.tight_layout()
-    p = os.path.join(folder, "before_after.png")
-    atomic_save(lambda t: fig.savefig(t, dpi=110, format="png"), p)
-    plt.close(fig)
-    paths.append(p)
-
-    fig, ax = plt.subplots(figsize=(6.5, 4.2))
-    ax.scatter(res["fitted"], res["residual"], s=14, color="#2a6f97")
-    ax.axhline(0, color="#888888", lw=1)
-    ax.set_xlabel("fitted value (re-expressed scale)")
-    ax.set_ylabel("residual")
-    ax.set_title("Residuals against fitted: a curve or a fan means the line does not hold")
-    ax.title.set_fontsize(10)
-    fig.tight_layout()
-    p = os.path.join(folder, "residuals.png")
-    atomic_save(lambda t: fig.savefig(t, dpi=110, format="png"), p)
-    plt.close(fig)
-    paths.append(p)
-
-    t = a.scan
-    yr = list(dict.fromkeys(t.sort_values("y_power", ascending=False)["y_power"]))
-    xr = list(dict.fromkeys(t.sort_values("x_power", ascending=False)["x_power"]))
-    grid = np.full((len(yr), len(xr)), np.nan)
-    mark = np.full((len(yr), len(xr)), "", dtype=object)
-    for row in t.itertuples(index=False):
-        i, j = yr.index(row.y_power), xr.index(row.x_power)
-        grid[i, j] = row.loglik
-        if row.verdict.startswith("not possible"):
-            mark[i, j] = "n/a"
-        elif "curve" in row.verdict or "drift" in row.verdict:
-            mark[i, j] = "bends"
-        elif "fan" in row.verdict:
-            mark[i, j] = "fans"
-        else:
-            mark[i, j] = "ok"
-        if row.rank == 1:
-            mark[i, j] = "best"
-    fig, ax = plt.subplots(figsize=(7, 5))
-    im = ax.imshow(grid, cmap="viridis", aspect="auto")
-    ax.set_xticks(range(len(xr)), [unbend.rung_label(v) for v in xr], rotation=30, ha="right")
-    ax.set_yticks(range(len(yr)), [unbend.rung_label(v) for v in yr])
-    ax.set_xlabel("x rung")
-    ax.set_ylabel("y rung")
-    finite = grid[np.isfinite(grid)]
-    lo_, hi_ = (finite.min(), finite.max()) if finite.size else (0.0, 1.0)
-    for i in range(len(yr)):
-        for j in range(len(xr)):
-            bright = np.isfinite(grid[i, j]) and hi_ > lo_ and (grid[i, j] - lo_) / (hi_ - lo_) > 0.7
-            ax.text(j, i, mark[i, j], ha="center", va="center", color="black" if bright else "white",
-                    fontsize=9, fontweight="bold" if mark[i, j] == "best" else "normal")
-    fig.colorbar(im, ax=ax, label="log-likelihood (higher is better)")
-    ax.set_title("Scan of rungs: likelihood, and what the residual checks say")
-    fig.tight_layout()
-    p = os.path.join(folder, "scan.png")
-    atomic_save(lambda t_: fig.savefig(t_, dpi=110, format="png"), p)
-    plt.close(fig)
-    paths.append(p)
-    return paths
+    return draw(plot_data(a), folder)

@@ -9,6 +9,8 @@ import numpy as np
 from openpyxl.styles import Alignment, Font, PatternFill
 from openpyxl.utils import get_column_letter
 
+from .outputs import atomic_save, same_file  # noqa: F401  (kept here for the writers that import them from sheets)
+
 __all__ = [
     "put",
     "put_text",
@@ -36,12 +38,7 @@ NOTE_FONT = Font(name=_FACE, italic=True, color="555555")
 CAUTION_FONT = Font(name=_FACE, bold=True, color="9C2A00")
 HEADER_FILL = PatternFill("solid", fgColor="E8EEF4")
 WARN_FILL = PatternFill("solid", fgColor="FBE3D6")
-#: Numbers as the spreadsheet shows them by default (no forced decimals).
-GENERAL = "General"
-#: Pick a format by the size of each number (see :func:`smart_format`).
-SMART = "smart"
-#: p-values: tiny ones as "<0.0001" rather than 0.0000.
-P_FORMAT = '[<0.0001]"<0.0001";0.0000'
+from .xlsx import GENERAL, P_FORMAT, SMART  # noqa: E402,F401  (number formats, defined once in xlsx.py)
 
 _FORMULA_START = ("=", "+", "-", "@")
 
@@ -135,44 +132,6 @@ def printable(wb):
         ws.page_setup.fitToHeight = 0
 
 
-def same_file(a, b) -> bool:
-    """True when two paths name the same file (or would, once created)."""
-    try:
-        if os.path.exists(a) and os.path.exists(b):
-            return os.path.samefile(a, b)
-    except OSError:
-        pass
-    return os.path.realpath(os.fspath(a)) == os.path.realpath(os.fspath(b))
-
-
-def atomic_save(save, path) -> str:
-    """Call ``save(tmp_path)`` then move the file into place in one step.
-
-    The temporary file sits in the target folder so the final rename never
-    crosses file systems; on failure it is removed and ``path`` is untouched.
-    """
-    path = os.fspath(path)
-    folder = os.path.dirname(os.path.abspath(path))
-    os.makedirs(folder, exist_ok=True)
-    fd, tmp = tempfile.mkstemp(prefix=".unbend-", suffix=os.path.splitext(path)[1], dir=folder)
-    os.close(fd)
-    try:
-        save(tmp)
-        umask = os.umask(0)
-        os.umask(umask)
-        os.chmod(tmp, 0o666 & ~umask)
-        os.replace(tmp, path)
-    except OSError as e:
-        if os.path.exists(tmp):
-            os.unlink(tmp)
-        raise OSError(e.errno, e.strerror or str(e), path) from None
-    except BaseException:
-        if os.path.exists(tmp):
-            os.unlink(tmp)
-        raise
-    return path
-
-
 def scatter_chart(ws, title, xref, yref, xlabel, ylabel, anchor, *, height=9.0, width=16.0):
     """A native scatter chart (points only) that any spreadsheet program draws without the add-in."""
     from openpyxl.chart import ScatterChart, Series
@@ -200,3 +159,137 @@ def scatter_chart(ws, title, xref, yref, xlabel, ylabel, anchor, *, height=9.0, 
     ch.height, ch.width = height, width
     ws.add_chart(ch, anchor)
     return ch
+
+
+class OpenpyxlSheet:
+    """An openpyxl worksheet behind the same small interface as :class:`unbend.udfs.xlsx.Sheet`.
+
+    Writers that serve both new XlsxWriter workbooks and openpyxl workbooks
+    (the portable model sheet) write through this interface; rows and
+    columns are 1-based.
+    """
+
+    def __init__(self, ws):
+        self.ws = ws
+        self._styles = {}
+
+    @property
+    def title(self) -> str:
+        return self.ws.title
+
+    def _apply(self, c, style):
+        if style is None:
+            return c
+        from openpyxl.styles import Border, Side
+
+        key = style
+        parts = self._styles.get(key)
+        if parts is None:
+            font = Font(name=style.font, bold=style.bold or None, italic=style.italic or None, size=style.size,
+                        color=style.color) if (style.font or style.bold or style.italic or style.size
+                                               or style.color) else None
+            fill = PatternFill("solid", fgColor=style.fill) if style.fill else None
+            side = Side(style="thin", color=style.border) if style.border else None
+            border = Border(left=side, right=side, top=side, bottom=side) if side else None
+            align = Alignment(wrap_text=style.wrap or None, horizontal=style.halign, vertical=style.valign) \
+                if (style.wrap or style.halign or style.valign) else None
+            parts = self._styles[key] = (font, fill, border, align, style.num_format)
+        font, fill, border, align, nf = parts
+        if font is not None:
+            c.font = font
+        if fill is not None:
+            c.fill = fill
+        if border is not None:
+            c.border = border
+        if align is not None:
+            c.alignment = align
+        if nf:
+            c.number_format = nf
+        return c
+
+    def text(self, row, col, text, style=None):
+        from openpyxl.cell.cell import ILLEGAL_CHARACTERS_RE
+
+        c = self.ws.cell(row=row, column=col)
+        c.value = ILLEGAL_CHARACTERS_RE.sub("", str(text))[:32767]
+        c.data_type = "s"  # openpyxl would read a leading '=' as a formula
+        return self._apply(c, style)
+
+    def value(self, row, col, v, style=None):
+        if isinstance(v, np.generic):
+            v = v.item()
+        if isinstance(v, str):
+            return self.text(row, col, v, style)
+        c = self.ws.cell(row=row, column=col)
+        if v is None or (isinstance(v, float) and not math.isfinite(v)):
+            c.value = None
+        else:
+            c.value = v
+        return self._apply(c, style)
+
+    number = value
+
+    def blank(self, row, col, style):
+        return self._apply(self.ws.cell(row=row, column=col), style)
+
+    def formula(self, row, col, text, style=None, value=None):
+        if not text.startswith("="):
+            raise AssertionError("formula text must start with '='")
+        c = self.ws.cell(row=row, column=col)
+        c.value = text
+        return self._apply(c, style)
+
+    def merge(self, row, col1, col2, text, style=None):
+        self.text(row, col1, text, style)
+        self.ws.merge_cells(start_row=row, start_column=col1, end_row=row, end_column=col2)
+
+    def width(self, col, w):
+        self.ws.column_dimensions[get_column_letter(col)].width = w
+
+    def height(self, row, h):
+        self.ws.row_dimensions[row].height = h
+
+    def printable(self, print_area=None):
+        self.ws.page_setup.orientation = "landscape"
+        self.ws.page_setup.fitToWidth = 1
+        self.ws.page_setup.fitToHeight = 0
+        self.ws.sheet_properties.pageSetUpPr.fitToPage = True
+        if print_area:
+            self.ws.print_area = print_area
+
+    def table(self, first_row, first_col, last_row, last_col, name, headers, style_name, header_style=None):
+        from openpyxl.worksheet.table import Table, TableStyleInfo
+
+        t = Table(displayName=name, ref=f"{get_column_letter(first_col)}{first_row}:"
+                                        f"{get_column_letter(last_col)}{last_row}")
+        t.tableStyleInfo = TableStyleInfo(name=style_name.replace(" ", ""), showRowStripes=True)
+        self.ws.add_table(t)
+
+    def validation(self, row, col, spec: dict):
+        from openpyxl.worksheet.datavalidation import DataValidation
+
+        dv = DataValidation(type=spec["validate"], operator=spec["criteria"], formula1=str(spec["minimum"]),
+                            formula2=str(spec["maximum"]), allow_blank=bool(spec.get("ignore_blank", True)),
+                            showErrorMessage=True, errorTitle=spec.get("error_title"),
+                            error=spec.get("error_message"))
+        dv.add(f"{get_column_letter(col)}{row}")
+        self.ws.add_data_validation(dv)
+
+    def block(self, first_row, first_col, columns, n):
+        """Write a row block cell by cell (openpyxl has no faster way); formulas from ``Column.formula_at``."""
+        for j, colspec in enumerate(columns):
+            col = first_col + j
+            vals = colspec.values
+            for i in range(n):
+                r = first_row + i
+                style = colspec.style if colspec.styles is None else colspec.styles[int(colspec.style_index[i])]
+                if colspec.kind == "formula":
+                    self.formula(r, col, colspec.formula_at(r), style)
+                elif colspec.kind == "text":
+                    v = vals[i] if i < len(vals) else None
+                    if v is None or v == "":
+                        self.blank(r, col, style)
+                    else:
+                        self.text(r, col, v, style)
+                else:
+                    self.value(r, col, vals[i] if i < len(vals) else None, style)

@@ -1,0 +1,132 @@
+"""The report's PNG plots, drawn from plain arrays.
+
+:func:`plot_data` takes what the plots need from an analysis (numbers and
+words only, picklable); :func:`draw` draws them with matplotlib's object
+interface and the Agg canvas (no pyplot, no GUI backend to look for, about
+a third faster to import).
+
+Drawing in a helper process while the main process writes the workbook was
+tried and measured on this project's 2-core shared machine: no faster (the
+second core was busy with other work), so the plots are drawn in process.
+
+This module imports only numpy at the top and matplotlib inside :func:`draw`.
+"""
+from __future__ import annotations
+
+import os
+
+import numpy as np
+
+from .outputs import atomic_save
+
+__all__ = ["PLOT_FILES", "plot_data", "draw"]
+
+#: The plot files :func:`draw` writes, in its folder.
+PLOT_FILES = ("before_after.png", "residuals.png", "scan.png")
+
+
+def plot_data(a) -> dict:
+    """Everything the plots show, as arrays and text (picklable, no engine objects)."""
+    import unbend
+
+    f = a.fit
+    res = f.residuals
+    x0 = f.x_names[0]
+    t = a.scan
+    yr = list(dict.fromkeys(t.sort_values("y_power", ascending=False)["y_power"]))
+    xr = list(dict.fromkeys(t.sort_values("x_power", ascending=False)["x_power"]))
+    grid = np.full((len(yr), len(xr)), np.nan)
+    mark = [["" for _ in xr] for _ in yr]
+    for row in t.itertuples(index=False):
+        i, j = yr.index(row.y_power), xr.index(row.x_power)
+        grid[i, j] = row.loglik
+        if row.verdict.startswith("not possible"):
+            mark[i][j] = "n/a"
+        elif "curve" in row.verdict or "drift" in row.verdict:
+            mark[i][j] = "bends"
+        elif "fan" in row.verdict:
+            mark[i][j] = "fans"
+        else:
+            mark[i][j] = "ok"
+        if row.rank == 1:
+            mark[i][j] = "best"
+    col = lambda c: res[c].to_numpy(dtype=float)  # noqa: E731
+    return {
+        "run_id": a.run_id, "n": int(f.n), "one_x": len(f.x_names) == 1,
+        "x_name": x0, "y_name": a.y_name,
+        "x_label_re": f"{f.x_expr.label} of {x0}", "y_label_re": f"{f.y_expr.label} of {a.y_name}",
+        "x": col(x0), "y": col("y"), "x_re": col(f"{x0}_re"), "y_re": col("y_re"),
+        "fitted": col("fitted"), "residual": col("residual"),
+        "scan_grid": grid, "scan_marks": mark,
+        "scan_y_labels": [unbend.rung_label(v) for v in yr], "scan_x_labels": [unbend.rung_label(v) for v in xr],
+    }
+
+
+def draw(d: dict, folder) -> list:
+    """PNG plots: before/after scatter, residuals against fitted, the scan as a picture; returns their paths."""
+    from matplotlib.backends.backend_agg import FigureCanvasAgg
+    from matplotlib.figure import Figure
+
+    def subplots(*grid, figsize):
+        fig = Figure(figsize=figsize)
+        FigureCanvasAgg(fig)
+        return fig, fig.subplots(*grid)
+
+    os.makedirs(folder, exist_ok=True)
+    paths = []
+    meta = {"Software": "unbend", "unbend run": d["run_id"]}
+    # many points: smaller, lighter markers so the cloud still shows where the points are dense
+    n = d["n"]
+    size = 14.0 if n <= 2000 else max(1.0, 14.0 * (2000.0 / n) ** 0.5)
+    alpha = 1.0 if n <= 2000 else 0.5
+    dots = dict(s=size, alpha=alpha, color="#2a6f97", linewidths=0)
+
+    def save(fig, name):
+        p = os.path.join(folder, name)
+        atomic_save(lambda t: fig.savefig(t, dpi=110, format="png", metadata=meta), p)
+        paths.append(p)
+
+    fig, ax = subplots(1, 2, figsize=(10, 4.2))
+    ax[0].scatter(d["x"], d["y"], **dots)
+    ax[0].set_xlabel(d["x_name"])
+    ax[0].set_ylabel(d["y_name"])
+    ax[0].set_title("Before: original units")
+    ax[1].scatter(d["x_re"], d["y_re"], **dots)
+    if d["one_x"]:
+        order = np.argsort(d["x_re"])
+        ax[1].plot(d["x_re"][order], d["fitted"][order], color="#c8553d")
+    ax[1].set_xlabel(d["x_label_re"])
+    ax[1].set_ylabel(d["y_label_re"])
+    ax[1].set_title("After re-expression, with the fitted line")
+    fig.tight_layout()
+    save(fig, "before_after.png")
+
+    fig, ax = subplots(figsize=(6.5, 4.2))
+    ax.scatter(d["fitted"], d["residual"], **dots)
+    ax.axhline(0, color="#888888", lw=1)
+    ax.set_xlabel("fitted value (re-expressed scale)")
+    ax.set_ylabel("residual")
+    ax.set_title("Residuals against fitted: a curve or a fan means the line does not hold")
+    ax.title.set_fontsize(10)
+    fig.tight_layout()
+    save(fig, "residuals.png")
+
+    grid, mark = d["scan_grid"], d["scan_marks"]
+    fig, ax = subplots(figsize=(7, 5))
+    im = ax.imshow(grid, cmap="viridis", aspect="auto")
+    ax.set_xticks(range(len(d["scan_x_labels"])), d["scan_x_labels"], rotation=30, ha="right")
+    ax.set_yticks(range(len(d["scan_y_labels"])), d["scan_y_labels"])
+    ax.set_xlabel("x rung")
+    ax.set_ylabel("y rung")
+    finite = grid[np.isfinite(grid)]
+    lo_, hi_ = (finite.min(), finite.max()) if finite.size else (0.0, 1.0)
+    for i in range(grid.shape[0]):
+        for j in range(grid.shape[1]):
+            bright = np.isfinite(grid[i, j]) and hi_ > lo_ and (grid[i, j] - lo_) / (hi_ - lo_) > 0.7
+            ax.text(j, i, mark[i][j], ha="center", va="center", color="black" if bright else "white",
+                    fontsize=9, fontweight="bold" if mark[i][j] == "best" else "normal")
+    fig.colorbar(im, ax=ax, label="log-likelihood (higher is better)")
+    ax.set_title("Scan of rungs: likelihood, and what the residual checks say")
+    fig.tight_layout()
+    save(fig, "scan.png")
+    return paths
