@@ -37,7 +37,8 @@ import numpy as np
 from .express import LADDER, rung_label
 
 __all__ = ["Bend", "p_words", "next_rung", "bulge_moves", "verdict", "scan_words", "slope_reading", "explain",
-           "line_words", "interval_words", "r2_original_words", "mean_caution", "rung_choice_words"]
+           "line_words", "interval_words", "r2_original_words", "mean_caution", "rung_choice_words",
+           "fitted_rung_words"]
 
 
 # ----------------------------------------------------------------------------- small pieces
@@ -304,7 +305,7 @@ def scan_words(curvature, pattern, spread, *, likelihood_why: str = "", r2_origi
             bad.append("fan out")
         text = ("residuals " + " and ".join(bad)) if bad else "no clear curvature, drift or change of spread"
     if likelihood_why:
-        text += f"; no likelihood to rank it by: {likelihood_why}"
+        text += f"; no likelihood to rank it by ({likelihood_why})"
     if np.isfinite(r2_original) and r2_original < 0:
         text += "; the line taken back to original units misses y badly (R\u00b2 there below 0)"
     return text
@@ -316,8 +317,8 @@ def no_likelihood_words(has_zero: bool, exact: bool, start_hint: float | None, y
         return "the line fits every point exactly"
     if has_zero:
         who = "y plus its start" if y_start else "y"
-        hint = f" (add a start such as {start_hint:g})" if start_hint else " (add a start)"
-        return f"{who} has a zero, where this power has no likelihood{hint}"
+        hint = f"; add a start such as {start_hint:g}" if start_hint else "; add a start"
+        return f"{who} has a zero{hint}"
     return "it cannot be computed at this power"
 
 
@@ -345,6 +346,53 @@ def few_rows_words(n: int) -> str:
 def search_edge_words(estimate: float) -> str:
     return (f"The likelihood keeps rising to the edge of the search (power {estimate:+.0f}): the data do not pin "
             "the power down; look for an outlier, or add a start or more rows.")
+
+
+def fitted_rung_words(suggestion, fitted_power: float, other_power: float, table, name: str = "") -> str:
+    """Whether a one-power suggestion's rung is the rung a fit uses, and if not, why not, from the scan.
+
+    Parameters
+    ----------
+    suggestion : PowerSuggestion
+        For y (``what == 'y'``) or for x.
+    fitted_power : float
+        The power of the same variable in the fit.
+    other_power : float
+        The power of the other variable in the fit (the suggestion was made with it).
+    table : pandas.DataFrame
+        The scan of the same data (:func:`unbend.scan`).
+    name : str
+        The variable's name in the sentence (default: ``suggestion.what``).
+    """
+    from .diagnostics import ALPHA, PATTERN_ALPHA
+    name = name or suggestion.what
+    if suggestion.rung == fitted_power:
+        return "This is the rung the fit uses."
+    mine, other = ("y_power", "x_power") if suggestion.what == "y" else ("x_power", "y_power")
+    pick = lambda p: table[(table[mine] == p) & (table[other] == other_power)]  # noqa: E731
+    rs, rf = pick(suggestion.rung), pick(fitted_power)
+    lab_s, lab_f = rung_label(suggestion.rung), rung_label(fitted_power)
+    head = f"The fit uses {lab_f} for {name} instead"
+    if rs.empty or rf.empty:
+        return f"{head}: it uses the powers it was given."
+    rs, rf = rs.iloc[0], rf.iloc[0]
+    if rs["rank"] < rf["rank"]:
+        return f"{head}: it uses the powers it was given, not the scan's first pair."
+    if str(rs["verdict"]).startswith("not possible"):
+        return f"{head}: with {lab_s} for {name} the line cannot be fitted ({rs['verdict'][len('not possible: '):]})."
+    if not np.isfinite(rs["loglik"]) and np.isfinite(rf["loglik"]):
+        return f"{head}: with {lab_s} for {name} there is no likelihood to rank the pair by."
+
+    def bent(r):
+        return (np.isfinite(r["curvature_p"]) and r["curvature_p"] < ALPHA) or (
+            np.isfinite(r["pattern_p"]) and r["pattern_p"] < PATTERN_ALPHA)
+    if bent(rs) and not bent(rf):
+        return f"{head}: with {lab_s} for {name} the residuals curve or drift, so the scan ranks that pair lower."
+    text = (f"{head}: the scan ranks that pair higher on the likelihood ({num(rf['loglik'])} against "
+            f"{num(rs['loglik'])} with {lab_s})")
+    if suggestion.rung == 1.0 and suggestion.low <= 1.0 <= suggestion.high:
+        text += "; the one-power rule keeps raw whenever 1 lies inside the interval"
+    return text + "."
 
 
 # ----------------------------------------------------------------------------- predictions
