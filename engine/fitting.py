@@ -1,7 +1,7 @@
 """Least-squares line on the re-expressed scale (QR, never the normal equations)."""
 from __future__ import annotations
 
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 
 import numpy as np
 import pandas as pd
@@ -189,7 +189,7 @@ def gaussian_loglik_with_jacobian(rss: float, n: int, jac: float, log_scale: flo
     return float(-0.5 * n * (np.log(2 * np.pi) + 1 + np.log(rss / n) + log_scale) + jac)
 
 
-def _bend(y_t, x_t, coef, pvalues, r2, n, df, names, y_name) -> Bend:
+def _bend(y_t, x_t, coef, pvalues, r2, n, df, names, y_name, y_low, x_low) -> Bend:
     """What the verdict needs to turn a bend into advice: the powers, the slope's sign and whether there is a trend."""
     k = len(names)
     if k == 1:
@@ -199,7 +199,7 @@ def _bend(y_t, x_t, coef, pvalues, r2, n, df, names, y_name) -> Bend:
             F = (r2 / k) / ((1.0 - r2) / df) if r2 < 1 else np.inf
         sign, trend_p = 0.0, (float(stats.f.sf(F, k, df)) if not np.isnan(F) else float("nan"))
     return Bend(y_power=y_t.power, x_power=x_t.power, slope_sign=sign, trend_p=trend_p, n_x=k, y_name=y_name,
-                x_name=names[0] if k == 1 else _join(names), y_family=y_t.family)
+                x_name=names[0] if k == 1 else _join(names), y_family=y_t.family, y_low=y_low, x_low=x_low)
 
 
 def _join(names) -> str:
@@ -412,7 +412,13 @@ def _fit(y, x, y_power, x_power, y_start, x_start, level, log10, y_family, x_nam
         jac = float(np.sum(np.log(np.abs(y_t.derivative(yu)))))
     ll = gaussian_loglik_with_jacobian(rss_s, n, jac, log_scale=2.0 * np.log(ybig))
 
-    bend = _bend(y_t, x_t, coef, pv, r2, n, df, names, str(y_name))
+    with np.errstate(over="ignore"):
+        y_low, x_low = float(np.min(yu) + y_t.start), float(np.min(Xu) + x_t.start)
+    bend = _bend(y_t, x_t, coef, pv, r2, n, df, names, str(y_name), y_low, x_low)
+    if (curv.ran and not curv.passed) or (spr.ran and not spr.passed):  # advice will be given: read the likelihoods
+        from .power import likelihood_direction
+        bend = replace(bend, y_lik=likelihood_direction(yu, Xu, y_t, x_t, "y"),
+                       x_lik=likelihood_direction(yu, Xu, y_t, x_t, "x") if k == 1 else 0)
 
     table = pd.DataFrame({"row": np.flatnonzero(rows.used) + 1, "y": yu})
     for j, nm in enumerate(names):

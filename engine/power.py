@@ -407,3 +407,41 @@ def spread_power(values, groups, *, level=0.95, start=0.0, rungs=None) -> PowerS
     return _suggestion(est, 1.0 - b_hi, 1.0 - b_lo, level=level, what="values (spread)",
                        method="spread against level (log IQR on log median)", n=int(vv.size),
                        skipped=rows_skipped, loglik=np.nan, rungs=rungs, extra=extra, detail=detail)
+
+
+#: Step either side of the current power when reading which way a profile likelihood rises.
+_DIRECTION_STEP = 0.01
+
+
+def likelihood_direction(yu: np.ndarray, Xu: np.ndarray, y_expr: Reexpression, x_expr: Reexpression,
+                         which: str) -> int:
+    """Which way the profile likelihood of y's power (``which='y'``) or x's power rises at the current power.
+
+    The profiles are those of :func:`suggest_power` and :func:`suggest_x_power`
+    (Box-Cox for y with x as fitted; the x-power profile with y as fitted),
+    read on either side of the current power. +1 towards higher powers, -1
+    towards lower, 0 when flat or when it cannot be computed (values at or
+    below 0 after the start, Yeo-Johnson y, overflow).
+    """
+    h = _DIRECTION_STEP
+    try:
+        with np.errstate(all="ignore"):
+            if which == "y":
+                if y_expr.family != "ladder":
+                    return 0
+                v = yu + y_expr.start
+                if not (np.all(np.isfinite(v)) and np.all(v > 0)):
+                    return 0
+                prof = lik.BoxCoxProfile(v, lik.Design(x_expr.apply(Xu)))
+                p = y_expr.power
+            else:
+                xv = Xu + x_expr.start
+                yt = y_expr.apply(yu)
+                if not (np.all(np.isfinite(xv)) and np.all(xv > 0) and np.all(np.isfinite(yt))):
+                    return 0
+                prof = lik.XPowerProfile(yt, xv)
+                p = x_expr.power
+            d = prof.loglik(p + h) - prof.loglik(p - h)
+    except (UnbendError, np.linalg.LinAlgError, FloatingPointError, ValueError):
+        return 0
+    return int(np.sign(d)) if np.isfinite(d) else 0

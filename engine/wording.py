@@ -34,7 +34,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .express import LADDER, rung_label
+from .express import LADDER, _lowest_allowed, rung_label
 
 __all__ = ["Bend", "p_words", "next_rung", "bulge_moves", "verdict", "scan_words", "slope_reading", "explain",
            "line_words", "interval_words", "r2_original_words", "mean_caution", "rung_choice_words",
@@ -153,6 +153,14 @@ class Bend:
         Number of x columns.
     y_name, x_name : str
     y_family : str
+    y_lik, x_lik : int
+        Which way the profile likelihood of y's power (and of x's) rises at
+        the fitted power: +1 up, -1 down, 0 unknown. A rung is advised only
+        where the bend and the likelihood agree; otherwise the advice says the
+        likelihood points the other way (it also weighs spread and skew).
+    y_low, x_low : float
+        Smallest value of y (and of x) plus its start, so the advice can say
+        when the rung it names needs a start first.
     """
 
     y_power: float
@@ -163,6 +171,10 @@ class Bend:
     y_name: str = "y"
     x_name: str = "x"
     y_family: str = "ladder"
+    y_lik: int = 0
+    x_lik: int = 0
+    y_low: float = float("nan")
+    x_low: float = float("nan")
 
 
 def _end_words(name: str, power: float, move: int) -> str:
@@ -170,11 +182,28 @@ def _end_words(name: str, power: float, move: int) -> str:
     return f"{name} is already at {rung_label(power)}, the end of the ladder {way}"
 
 
+def _needs_start(power: float, low: float, name: str) -> str:
+    """'' when every value can take ``power``; else a clause saying a start is needed first."""
+    bound, strict = _lowest_allowed(power, "ladder")
+    if not np.isfinite(low) or low > bound or (low == bound and not strict):
+        return ""
+    return f"{name} has values {'at or below' if strict else 'below'} 0, so add a start first"
+
+
+def _against_words(name: str) -> str:
+    return f"the likelihood for the power of {name} points the other way"
+
+
 def _y_option(bend: Bend, move: int):
+    """(words for the next y rung to try, or None; the reason when None)."""
+    if bend.y_lik and bend.y_lik != move:
+        return None, _against_words(bend.y_name)
     if bend.y_family != "ladder":
-        return f"a {'higher' if move > 0 else 'lower'} Yeo-Johnson power of {bend.y_name}"
+        return f"a {'higher' if move > 0 else 'lower'} Yeo-Johnson power of {bend.y_name}", ""
     r = next_rung(bend.y_power, move)
-    return None if r is None else of(r, bend.y_name)
+    if r is None:
+        return None, _end_words(bend.y_name, bend.y_power, move)
+    return of(r, bend.y_name), _needs_start(r, bend.y_low, bend.y_name)
 
 
 def bend_advice(shape: float, bend: Bend | None, fan_move: int = 0) -> str:
@@ -183,6 +212,8 @@ def bend_advice(shape: float, bend: Bend | None, fan_move: int = 0) -> str:
     ``fan_move`` is the way the spread check would move y (-1 when the spread
     grows with the level, +1 when it shrinks, 0 when the spread check found
     nothing); when it points the other way from the bend, only x is advised.
+    A rung is advised only where the profile likelihood of that power rises
+    the same way (``bend.y_lik``, ``bend.x_lik``).
     """
     return _bend(shape, bend, fan_move)[0]
 
@@ -197,29 +228,33 @@ def _bend(shape: float, bend: Bend | None, fan_move: int = 0):
         return (f"The slope is not clearly different from 0 ({pw}), so the bend gives no direction for a power: "
                 "a relation that rises and then falls cannot be straightened by one."), False, False
     y_move, x_move = bulge_moves(shape, bend.slope_sign)
-    if bend.n_x > 1:
-        x_move = 0
     conflict = fan_move != 0 and y_move != 0 and fan_move != y_move
-    y_opt = None if conflict else _y_option(bend, y_move)
-    x_rung = next_rung(bend.x_power, x_move) if x_move else None
-    x_opt = None if x_rung is None else of(x_rung, bend.x_name)
+    why = []
     if conflict:
-        pull = (f"The bend asks for {bend.y_name} {'higher' if y_move > 0 else 'lower'} on the ladder and the fan "
-                f"for {'lower' if y_move > 0 else 'higher'}, so no power of {bend.y_name} helps both")
-        return (f"{pull}: try {x_opt} next." if x_opt else f"{pull}; look at the residual plot."), False, True
-    if y_opt and x_opt:
-        return f"To straighten it, try {y_opt} next, or {x_opt}.", True, False
-    if y_opt:
-        if bend.n_x > 1:
-            return f"To straighten it, try {y_opt} next, or other x rungs (see the scan).", True, False
-        return f"To straighten it, try {y_opt} next ({_end_words(bend.x_name, bend.x_power, x_move)}).", True, False
-    if x_opt:
-        return (f"To straighten it, try {x_opt} next ({_end_words(bend.y_name, bend.y_power, y_move)})."), False, False
+        y_opt = None
+        why.append(f"the fan pulls {bend.y_name} the other way")
+    else:
+        y_opt, reason = _y_option(bend, y_move)
+        why += [reason] if reason else []
+    x_opt = None
     if bend.n_x > 1:
-        return (f"The bend points past the end of the ladder for {bend.y_name} "
-                f"({_end_words(bend.y_name, bend.y_power, y_move)}); try other x rungs (see the scan)."), False, False
-    return (f"The bend points past the end of the ladder for both {bend.y_name} and {bend.x_name}: no rung "
-            "straightens it further; look at the residual plot."), False, False
+        why.append("for the x columns, see the scan")
+    elif x_move:
+        r = next_rung(bend.x_power, x_move)
+        if bend.x_lik and bend.x_lik != x_move:
+            why.append(_against_words(bend.x_name))
+        elif r is None:
+            why.append(_end_words(bend.x_name, bend.x_power, x_move))
+        else:
+            x_opt = of(r, bend.x_name)
+            start = _needs_start(r, bend.x_low, bend.x_name)
+            why += [start] if start else []
+    opts = [o for o in (y_opt, x_opt) if o]
+    tail = f" ({'; '.join(why)})" if why else ""
+    if opts:
+        return f"To straighten it, try {opts[0]} next{', or ' + opts[1] if len(opts) > 1 else ''}{tail}.", \
+            y_opt is not None, conflict
+    return f"No rung to try follows from the bend{tail}; look at the residual plot.", False, conflict
 
 
 def _fan_advice(move: int, bend: Bend | None, said_y: bool) -> str:
@@ -227,10 +262,10 @@ def _fan_advice(move: int, bend: Bend | None, said_y: bool) -> str:
         return f"Move y {'lower' if move < 0 else 'higher'} on the ladder. "
     if said_y:
         return f"Moving {bend.y_name} {'down' if move < 0 else 'up'} the ladder, as above, also tends to even it out. "
-    opt = _y_option(bend, move)
+    opt, reason = _y_option(bend, move)
     if opt is None:
-        return f"({_cap(_end_words(bend.y_name, bend.y_power, move))}.) "
-    return f"Try {opt} next. "
+        return f"({_cap(reason)}.) "
+    return f"Try {opt} next{' (' + reason + ')' if reason else ''}. "
 
 
 # ----------------------------------------------------------------------------- the verdict
