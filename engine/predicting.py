@@ -128,8 +128,7 @@ def mean_cautions(fit, eta: np.ndarray, median: np.ndarray, mean: np.ndarray) ->
             ratio = float(mean[i] / median[i]) if median[i] > 0 else float("nan")
         far = bool(np.isfinite(ratio) and ratio > MEAN_FAR)
         few = bool(np.isfinite(neff[i]) and neff[i] < few_below)
-        out[i] = mean_caution(unbounded=unbounded, ratio=ratio, n_eff=float(neff[i]), n=n, far=far, few=few,
-                              past_end=t.family == "ladder" and t.power < 0)
+        out[i] = mean_caution(unbounded=unbounded, n=n, far=far, few=few, past_end=t.family == "ladder" and t.power < 0)
     return out
 
 

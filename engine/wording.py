@@ -431,22 +431,22 @@ def fitted_rung_words(suggestion, fitted_power: float, other_power: float, table
 
 
 # ----------------------------------------------------------------------------- predictions
-def mean_caution(*, unbounded: bool, ratio: float, n_eff: float, n: int, far: bool, few: bool,
-                 past_end: bool = False) -> str:
+#: The words of a mean that cannot be trusted (the portable sheet writes the same words in formulas).
+MEAN_UNBOUNDED = ("the mean is unbounded at this y power (some residuals take the line past the end of the scale): "
+                  "use the median")
+MEAN_NOT_COMPUTED = "the mean cannot be computed here: use the median"
+MEAN_UNTRUSTED = "the mean is not to be trusted ({why}): use the median"
+MEAN_FAR_WORDS = "more than {far:g} times the median"
+MEAN_FEW_WORDS = "it rests on a few of the {n} residuals"
+
+
+def mean_caution(*, unbounded: bool, n: int, far: bool, few: bool, past_end: bool = False) -> str:
     """The note for a mean that cannot be trusted; '' when it can."""
+    from .predicting import MEAN_FAR
     if unbounded:
-        if past_end:
-            return ("the mean is unbounded at this y power (some residuals take the line past the end of the scale): "
-                    "use the median")
-        return "the mean cannot be computed here: use the median"
-    why = []
-    if far:
-        why.append(f"it is {ratio:.3g} times the median")
-    if few:
-        why.append(f"it rests on about {n_eff:.2g} of the {n} residuals")
-    if not why:
-        return ""
-    return f"the mean is not to be trusted ({' and '.join(why)}): use the median"
+        return MEAN_UNBOUNDED if past_end else MEAN_NOT_COMPUTED
+    why = ([MEAN_FAR_WORDS.format(far=MEAN_FAR)] if far else []) + ([MEAN_FEW_WORDS.format(n=n)] if few else [])
+    return MEAN_UNTRUSTED.format(why="; ".join(why)) if why else ""
 
 
 # ----------------------------------------------------------------------------- reading the line
