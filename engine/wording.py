@@ -622,6 +622,8 @@ def r2_original_words(fit) -> str:
     if not np.all(np.isfinite(back)):
         return ("blank: somewhere the line is past the end this y power can reach, so it has no value in original "
                 "units there." + tail)
+    if not np.isfinite(r):
+        return "blank: it cannot be computed for these values (the sums overflow)." + tail
     if float(np.max(back)) > top + span:
         return (f"below 0: taken back to original units the line shoots past the data (up to {num(np.max(back))} "
                 f"where the largest y is {num(top)}); near the end of the {fit.y_expr.label} scale small steps "
