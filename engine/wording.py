@@ -211,9 +211,11 @@ def bend_advice(shape: float, bend: Bend | None, fan_move: int = 0) -> str:
 
     ``fan_move`` is the way the spread check would move y (-1 when the spread
     grows with the level, +1 when it shrinks, 0 when the spread check found
-    nothing); when it points the other way from the bend, only x is advised.
-    A rung is advised only where the profile likelihood of that power rises
-    the same way (``bend.y_lik``, ``bend.x_lik``).
+    nothing). A rung is advised only where the profile likelihood of that
+    power rises the same way (``bend.y_lik``, ``bend.x_lik``); the likelihood
+    weighs bend and spread together, so it also settles a fan that pulls y the
+    other way. Where it cannot be computed and the two pull apart, only x is
+    advised.
     """
     return _bend(shape, bend, fan_move)[0]
 
@@ -228,7 +230,8 @@ def _bend(shape: float, bend: Bend | None, fan_move: int = 0):
         return (f"The slope is not clearly different from 0 ({pw}), so the bend gives no direction for a power: "
                 "a relation that rises and then falls cannot be straightened by one."), False, False
     y_move, x_move = bulge_moves(shape, bend.slope_sign)
-    conflict = fan_move != 0 and y_move != 0 and fan_move != y_move
+    # a fan that pulls y the other way: the likelihood for y's power weighs both and decides; without it, no y advice
+    conflict = fan_move != 0 and y_move != 0 and fan_move != y_move and not bend.y_lik
     why = []
     if conflict:
         y_opt = None
