@@ -9,11 +9,17 @@ from scipy import stats
 
 __all__ = ["Check", "curvature_test", "pattern_bins", "pattern_test", "spread_test", "normality_test", "verdict"]
 
-#: Significance level the checks use to call a problem (common practice).
+#: Significance level the curvature and spread checks use to call a problem (common practice).
 ALPHA = 0.05
 #: The pattern check is a second, broader look at the same question as the
 #: curvature check; a stricter level keeps the two from doubling false alarms.
 PATTERN_ALPHA = 0.01
+#: The normality check calls a problem at this stricter level: intervals for the line
+#: lean little on normal residuals, so only a clear departure is reported.
+NORMALITY_ALPHA = ALPHA / 5
+#: From this many rows on, the verdict adds that a normality test flags even small
+#: departures (common practice: the power of the test grows with n while the harm does not).
+NORMALITY_LARGE_N = 200
 
 
 @dataclass(frozen=True)
@@ -27,7 +33,8 @@ class Check:
     statistic, pvalue : float
         NaN when the test could not be run (too few rows).
     passed : bool or None
-        True when no problem is found at the 5% level; None when not run.
+        True when the check finds no problem at its level (:data:`ALPHA`,
+        :data:`PATTERN_ALPHA` or :data:`NORMALITY_ALPHA`); None when not run.
     direction : float
         Sign of the departure: for curvature, the sign of the squared-term
         coefficient (+1 residuals bow up at both ends, -1 bow down); for
@@ -232,7 +239,7 @@ def normality_test(resid: np.ndarray) -> Check:
     else:
         st, pv = dagostino_pearson(resid)
         name = "D'Agostino-Pearson"
-    return make_check(name, st, pv, ALPHA / 5)
+    return make_check(name, st, pv, NORMALITY_ALPHA)
 
 
 def dagostino_pearson(a: np.ndarray):
@@ -282,54 +289,12 @@ def dagostino_pearson(a: np.ndarray):
     return k2, float(stats.chi2.sf(k2, 2))
 
 
-def _p(pv: float) -> str:
-    return "p < 0.001" if pv < 0.001 else f"p = {pv:.3f}"
-
-
 def verdict(r2: float, curvature: Check, spread: Check, normality: Check, n: int,
-            pattern: Check | None = None) -> str:
-    """One or two plain sentences on whether the straight line holds on this scale.
+            pattern: Check | None = None, *, bend=None) -> str:
+    """A few plain sentences on what the residual checks found (see :func:`unbend.wording.verdict`).
 
-    The advice on which way to move follows Tukey's bulging rule (common
-    practice): residuals that bow up at both ends call for y lower on the
-    ladder or x higher; bowing down, the opposite.
+    ``bend`` (a :class:`unbend.wording.Bend`) lets the words name the next rung
+    to try by the bulging rule of Mosteller and Tukey (1977).
     """
-    parts = []
-    if curvature.ran and not curvature.passed:
-        if curvature.direction > 0:
-            move = "try y lower on the ladder (towards log) or x higher (towards square)"
-        else:
-            move = "try y higher on the ladder (towards square) or x lower (towards log)"
-        lead = f"R\u00b2 is {r2:.3f}, yet the residuals still curve" if r2 >= 0.8 else "The residuals still curve"
-        parts.append(f"{lead} (curvature test {_p(curvature.pvalue)}): a straight line on this scale misses a bend; {move}.")
-    elif pattern is not None and pattern.ran and not pattern.passed:
-        lead = f"R\u00b2 is {r2:.3f}, yet the residuals" if r2 >= 0.8 else "The residuals"
-        parts.append(f"{lead} drift up and down with the fitted value (pattern check {_p(pattern.pvalue)}): "
-                     "the line misses a shape; try other rungs (see the scan).")
-    if spread.ran and not spread.passed:
-        if spread.direction >= 0:
-            move = "the spread grows with the fitted value; move y lower on the ladder"
-        else:
-            move = "the spread shrinks as the fitted value grows; move y higher on the ladder"
-        lead = "The residuals also fan out" if parts else (
-            f"R\u00b2 is {r2:.3f}, yet the residuals fan out" if r2 >= 0.8 else "The residuals fan out")
-        parts.append(f"{lead} (spread test {_p(spread.pvalue)}): {move}; intervals assume an even spread.")
-    if not parts:
-        bits = []
-        if curvature.ran:
-            bits.append(f"curvature ({_p(curvature.pvalue)})")
-        if pattern is not None and pattern.ran:
-            bits.append(f"pattern ({_p(pattern.pvalue)})")
-        if spread.ran:
-            bits.append(f"change of spread ({_p(spread.pvalue)})")
-        if bits:
-            parts.append(f"No clear {', '.join(bits[:-1]) + ' or ' + bits[-1] if len(bits) > 1 else bits[0]} in the residuals: the straight line on this scale "
-                         "holds by these checks. Still look at the residual plot.")
-        else:
-            parts.append("Too few rows to check the residuals for curvature or spread.")
-    if normality.ran and not normality.passed:
-        parts.append(f"The residuals are far from normal ({normality.name} {_p(normality.pvalue)}): "
-                     "prediction intervals may be off; look for outliers.")
-    if n < 8:
-        parts.append(f"Only {n} rows: the checks have little power.")
-    return " ".join(parts)
+    from .wording import verdict as words
+    return words(r2, curvature, spread, normality, n, pattern, bend=bend)

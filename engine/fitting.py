@@ -1,7 +1,7 @@
 """Least-squares line on the re-expressed scale (QR, never the normal equations)."""
 from __future__ import annotations
 
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 
 import numpy as np
 import pandas as pd
@@ -10,6 +10,7 @@ from scipy import linalg, stats
 from ._validation import FEW_ROWS, UnbendError, as_matrix, as_vector, check_level, usable_rows
 from .diagnostics import Check, curvature_test, normality_test, pattern_bins, pattern_test, spread_test, verdict
 from .express import Reexpression
+from .wording import Bend, r2_original_words
 
 __all__ = ["LineFit", "fit", "CAUTION"]
 
@@ -140,16 +141,22 @@ class LineFit:
             ("R\u00b2 (re-expressed scale)", self.r2),
             ("adjusted R\u00b2 (re-expressed scale)", self.adj_r2),
             ("R\u00b2 in original units (back-transformed line)", self.r2_original),
+        ]
+        why = r2_original_words(self)
+        if why:
+            out.append(("R\u00b2 in original units: why", why))
+        out += [
             ("residual SD (re-expressed scale)", self.resid_sd),
             ("rows used", self.n),
             ("rows skipped", self.n_skipped),
             ("curvature check p (Tukey 1 df)", self.curvature.pvalue),
-            ("curvature check", _word(self.curvature, "no clear curvature", "residuals curve")),
+            ("curvature check", _word(self.curvature, "no clear sign of curvature", "residuals curve")),
             ("pattern check p (Kruskal-Wallis across bins of x)", self.pattern.pvalue),
-            ("pattern check", _word(self.pattern, "no drift with level", "residuals drift with level")),
+            ("pattern check", _word(self.pattern, "no clear sign of drift with level", "residuals drift with level")),
             ("spread check p (Breusch-Pagan)", self.spread.pvalue),
-            ("spread check", _word(self.spread, "even spread", "spread changes")),
+            ("spread check", _word(self.spread, "no clear sign of a change of spread", "spread changes")),
             (f"normality check p ({self.normality.name})", self.normality.pvalue),
+            ("normality check", _word(self.normality, "no clear departure from normal", "not normal (see verdict)")),
             ("verdict", self.verdict),
             ("slope in original units", self.slope_reading()),
         ]
@@ -180,6 +187,23 @@ def gaussian_loglik_with_jacobian(rss: float, n: int, jac: float, log_scale: flo
     if not np.isfinite(jac) or rss <= 0:
         return float("nan")
     return float(-0.5 * n * (np.log(2 * np.pi) + 1 + np.log(rss / n) + log_scale) + jac)
+
+
+def _bend(y_t, x_t, coef, pvalues, r2, n, df, names, y_name, y_low, x_low) -> Bend:
+    """What the verdict needs to turn a bend into advice: the powers, the slope's sign and whether there is a trend."""
+    k = len(names)
+    if k == 1:
+        sign, trend_p = float(np.sign(coef[1])), float(pvalues[1])
+    else:  # F test of all slopes together; the bend is then measured against the fitted value
+        with np.errstate(divide="ignore", invalid="ignore"):
+            F = (r2 / k) / ((1.0 - r2) / df) if r2 < 1 else np.inf
+        sign, trend_p = 0.0, (float(stats.f.sf(F, k, df)) if not np.isnan(F) else float("nan"))
+    return Bend(y_power=y_t.power, x_power=x_t.power, slope_sign=sign, trend_p=trend_p, n_x=k, y_name=y_name,
+                x_name=names[0] if k == 1 else _join(names), y_family=y_t.family, y_low=y_low, x_low=x_low)
+
+
+def _join(names) -> str:
+    return ", ".join(names[:-1]) + " and " + names[-1]
 
 
 def _word(c: Check, good: str, bad: str) -> str:
@@ -388,6 +412,14 @@ def _fit(y, x, y_power, x_power, y_start, x_start, level, log10, y_family, x_nam
         jac = float(np.sum(np.log(np.abs(y_t.derivative(yu)))))
     ll = gaussian_loglik_with_jacobian(rss_s, n, jac, log_scale=2.0 * np.log(ybig))
 
+    with np.errstate(over="ignore"):
+        y_low, x_low = float(np.min(yu) + y_t.start), float(np.min(Xu) + x_t.start)
+    bend = _bend(y_t, x_t, coef, pv, r2, n, df, names, str(y_name), y_low, x_low)
+    if (curv.ran and not curv.passed) or (spr.ran and not spr.passed):  # advice will be given: read the likelihoods
+        from .power import likelihood_direction
+        bend = replace(bend, y_lik=likelihood_direction(yu, Xu, y_t, x_t, "y"),
+                       x_lik=likelihood_direction(yu, Xu, y_t, x_t, "x") if k == 1 else 0)
+
     table = pd.DataFrame({"row": np.flatnonzero(rows.used) + 1, "y": yu})
     for j, nm in enumerate(names):
         table[nm] = Xu[:, j]
@@ -406,6 +438,6 @@ def _fit(y, x, y_power, x_power, y_start, x_start, level, log10, y_family, x_nam
         ci_low=coef - tq * se, ci_high=coef + tq * se, level=level, r2=r2, adj_r2=adj,
         r2_original=r2o, resid_sd=float(s), df_resid=int(df), n=int(n), skipped=rows.skipped,
         x_names=names, x_min=Xu.min(axis=0), x_max=Xu.max(axis=0), curvature=curv, pattern=pat,
-        spread=spr, normality=nor, verdict=verdict(r2, curv, spr, nor, n, pat), warnings=tuple(warnings),
+        spread=spr, normality=nor, verdict=verdict(r2, curv, spr, nor, n, pat, bend=bend), warnings=tuple(warnings),
         loglik=float(ll), y_name=str(y_name), residuals=table, _resid=resid, _mu=mu, _sc=sc, _Rinv=Rinv,
     )

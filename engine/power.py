@@ -12,6 +12,7 @@ from ._validation import (FEW_ROWS, DomainError, UnbendError, as_matrix, as_vect
                           check_number, check_power, check_varies, usable_rows)
 from .express import LADDER, Reexpression, rung_label
 from . import _likelihood as lik
+from . import wording as words
 
 __all__ = ["PowerSuggestion", "suggest_power", "suggest_x_power", "spread_power",
            "symmetry_power", "choose_rung"]
@@ -70,9 +71,10 @@ class PowerSuggestion:
 def choose_rung(estimate: float, low: float, high: float, rungs=None, *, what: str = "y"):
     """Pick the ladder rung from an estimate and its interval.
 
-    If 1 lies inside the interval, 1 (no re-expression is needed). Otherwise
-    the rung inside the interval nearest the estimate; if no rung is inside,
-    the nearest rung, with a note that says so.
+    If 1 lies inside the interval, 1: the data give no clear reason to
+    re-express (which is not the same as showing that no re-expression is
+    needed). Otherwise the rung inside the interval nearest the estimate; if
+    no rung is inside, the nearest rung, with a note that says so.
 
     Returns
     -------
@@ -87,25 +89,16 @@ def choose_rung(estimate: float, low: float, high: float, rungs=None, *, what: s
         raise UnbendError("the estimate must be a finite number and both interval ends numbers (ends may be -inf "
                           "or inf).")
     if low <= 1.0 <= high:
-        return 1.0, f"1 lies inside the interval, so no re-expression of {what} is needed."
+        return 1.0, words.rung_choice_words("one inside", what)
     inside = [r for r in rungs if low <= r <= high]
     if inside:
         r = min(inside, key=lambda r: (abs(r - estimate), -r))
-        return r, "the ladder rung inside the interval that is nearest the estimate."
+        return r, words.rung_choice_words("inside", what, rung=r)
     r = min(rungs, key=lambda r: (abs(r - estimate), -r))
-    return r, (f"no rung lies inside the interval ({interval_words(low, high)}); this is the nearest. "
-               f"Consider the power {estimate:.3g} itself, or a start.")
+    return r, words.rung_choice_words("none inside", what, rung=r, low=low, high=high, estimate=estimate)
 
 
-def interval_words(low: float, high: float) -> str:
-    """An interval in words, saying so when an end is open."""
-    if np.isfinite(low) and np.isfinite(high):
-        return f"{low:.3g} to {high:.3g}"
-    if np.isfinite(low):
-        return f"{low:.3g} and above, with no upper end"
-    if np.isfinite(high):
-        return f"{high:.3g} and below, with no lower end"
-    return "no end in either direction"
+interval_words = words.interval_words
 
 
 def _rungs(rungs) -> tuple:
@@ -120,13 +113,17 @@ def _rungs(rungs) -> tuple:
     return out
 
 
+#: An interval that covers this many of the six rungs or more is called wide: the data cannot choose.
+WIDE_RUNGS = 4
+
+
 def _cautions(n: int, low: float, high: float) -> str:
     out = []
     if n < FEW_ROWS:
-        out.append(f"Only {n} usable rows: treat the suggestion as weak.")
+        out.append(words.few_rows_words(n))
     covered = sum(1 for r in LADDER if low <= r <= high)
-    if covered >= 4:
-        out.append(f"The interval covers {covered} of the 6 rungs: the data say little about the power.")
+    if covered >= WIDE_RUNGS:
+        out.append(words.wide_words(covered, len(LADDER), low, high))
     return " ".join(out)
 
 
@@ -137,8 +134,7 @@ def _suggestion(est, lo, hi, *, level, what, method, n, skipped, loglik, rungs, 
     if c:
         parts.append(c)
     if abs(est) >= lik.SEARCH_LIMIT * 0.999:
-        parts.append(f"The likelihood keeps rising to the edge of the search (power {est:+.0f}): the data do not pin "
-                     "the power down; look for an outlier, or add a start or more rows.")
+        parts.append(words.search_edge_words(est))
     if extra:
         parts.append(extra)
     return PowerSuggestion(estimate=float(est), low=float(lo), high=float(hi), rung=float(rung),
@@ -411,3 +407,41 @@ def spread_power(values, groups, *, level=0.95, start=0.0, rungs=None) -> PowerS
     return _suggestion(est, 1.0 - b_hi, 1.0 - b_lo, level=level, what="values (spread)",
                        method="spread against level (log IQR on log median)", n=int(vv.size),
                        skipped=rows_skipped, loglik=np.nan, rungs=rungs, extra=extra, detail=detail)
+
+
+#: Step either side of the current power when reading which way a profile likelihood rises.
+_DIRECTION_STEP = 0.01
+
+
+def likelihood_direction(yu: np.ndarray, Xu: np.ndarray, y_expr: Reexpression, x_expr: Reexpression,
+                         which: str) -> int:
+    """Which way the profile likelihood of y's power (``which='y'``) or x's power rises at the current power.
+
+    The profiles are those of :func:`suggest_power` and :func:`suggest_x_power`
+    (Box-Cox for y with x as fitted; the x-power profile with y as fitted),
+    read on either side of the current power. +1 towards higher powers, -1
+    towards lower, 0 when flat or when it cannot be computed (values at or
+    below 0 after the start, Yeo-Johnson y, overflow).
+    """
+    h = _DIRECTION_STEP
+    try:
+        with np.errstate(all="ignore"):
+            if which == "y":
+                if y_expr.family != "ladder":
+                    return 0
+                v = yu + y_expr.start
+                if not (np.all(np.isfinite(v)) and np.all(v > 0)):
+                    return 0
+                prof = lik.BoxCoxProfile(v, lik.Design(x_expr.apply(Xu)))
+                p = y_expr.power
+            else:
+                xv = Xu + x_expr.start
+                yt = y_expr.apply(yu)
+                if not (np.all(np.isfinite(xv)) and np.all(xv > 0) and np.all(np.isfinite(yt))):
+                    return 0
+                prof = lik.XPowerProfile(yt, xv)
+                p = x_expr.power
+            d = prof.loglik(p + h) - prof.loglik(p - h)
+    except (UnbendError, np.linalg.LinAlgError, FloatingPointError, ValueError):
+        return 0
+    return int(np.sign(d)) if np.isfinite(d) else 0

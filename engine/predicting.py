@@ -11,9 +11,18 @@ from scipy import stats
 
 from ._validation import FEW_ROWS, as_matrix, check_level
 
-__all__ = ["predict", "prediction_columns", "smeared_mean", "smearing_terms", "normal_theory_mean", "slope_reading", "explain"]
+__all__ = ["predict", "prediction_columns", "smeared_mean", "smearing_terms", "smearing_effective_terms",
+           "normal_theory_mean", "mean_cautions", "slope_reading", "explain", "MEAN_FAR", "MEAN_FEW_SHARE",
+           "MEAN_FEW_MIN"]
 
 _CHUNK = 2_000_000  # residual x new-x products per block in the smearing sum
+
+#: "Far above the median": a smearing mean more than this many times the median is flagged.
+MEAN_FAR = 3.0
+#: "Resting on a few residuals": a smearing mean whose effective number of terms (Kish) is below
+#: this share of the rows, or below :data:`MEAN_FEW_MIN`, is flagged.
+MEAN_FEW_SHARE = 0.1
+MEAN_FEW_MIN = 5
 
 
 def smeared_mean(fit, eta: np.ndarray) -> np.ndarray:
@@ -51,6 +60,75 @@ def smeared_mean(fit, eta: np.ndarray) -> np.ndarray:
         vals = t.invert(eta[sel, None] + e[None, :])  # includes -start
         with np.errstate(invalid="ignore", over="ignore"):
             out[sel] = vals.mean(axis=1)
+    return out
+
+
+def smearing_effective_terms(fit, eta: np.ndarray) -> np.ndarray:
+    """How many residuals Duan's smearing mean effectively rests on, at each fitted value ``eta``.
+
+    With ``t_i = g(eta + e_i) + start`` (the terms of the smearing sum, each
+    0 or above), this is Kish's effective number ``(sum t_i)^2 / sum t_i^2``:
+    ``n`` when every term weighs the same, near 1 when one term carries the
+    sum. NaN where it does not apply (raw y, whose mean is the median, and
+    Yeo-Johnson, whose terms may be negative) or cannot be computed.
+
+    References
+    ----------
+    Kish, L. (1965). *Survey Sampling*. Wiley, section 11.7 (effective sample size).
+    Duan, N. (1983). *JASA* 78(383), 605-610.
+    """
+    t = fit.y_expr
+    e = fit._resid
+    eta = np.asarray(eta, dtype=float)
+    out = np.full(eta.shape, np.nan)
+    if t.family != "ladder" or t.power == 1.0:
+        return out
+    ok = np.isfinite(eta)
+    with np.errstate(all="ignore"):
+        if t.power == 0.0:  # terms proportional to base ** e_i, whatever eta is
+            k = fit._memo.get("neff")
+            if k is None:
+                w = np.power(10.0 if t.log10 else math.e, e - e.max())
+                k = fit._memo.setdefault("neff", float(w.sum() ** 2 / (w @ w)))
+            out[ok] = k
+            return out
+        idx = np.flatnonzero(ok)
+        step = max(1, _CHUNK // max(e.size, 1))
+        for a in range(0, idx.size, step):
+            sel = idx[a:a + step]
+            v = t.invert(eta[sel, None] + e[None, :]) + t.start
+            top = v.max(axis=1, keepdims=True)
+            w = v / np.where(top > 0, top, 1.0)
+            out[sel] = w.sum(axis=1) ** 2 / np.einsum("ij,ij->i", w, w)
+    out[~np.isfinite(out)] = np.nan
+    return out
+
+
+def mean_cautions(fit, eta: np.ndarray, median: np.ndarray, mean: np.ndarray) -> list:
+    """For each fitted value, the note for a smearing mean that cannot be trusted ('' when it can).
+
+    Flagged: a mean that is not finite where the median is; a mean more than
+    :data:`MEAN_FAR` times the median; a mean resting on a few residuals (an
+    effective number of terms below :data:`MEAN_FEW_SHARE` of the rows or
+    below :data:`MEAN_FEW_MIN`). Raw y is never flagged: its mean is its median.
+    """
+    from .wording import mean_caution
+    t = fit.y_expr
+    n = fit.n
+    out = [""] * len(median)
+    if t.family == "ladder" and t.power == 1.0:
+        return out
+    neff = smearing_effective_terms(fit, eta)
+    few_below = max(MEAN_FEW_MIN, MEAN_FEW_SHARE * n)
+    for i in range(len(median)):
+        if not np.isfinite(median[i]):
+            continue
+        unbounded = not np.isfinite(mean[i])
+        with np.errstate(all="ignore"):
+            ratio = float(mean[i] / median[i]) if median[i] > 0 else float("nan")
+        far = bool(np.isfinite(ratio) and ratio > MEAN_FAR)
+        few = bool(np.isfinite(neff[i]) and neff[i] < few_below)
+        out[i] = mean_caution(unbounded=unbounded, n=n, far=far, few=few, past_end=t.family == "ladder" and t.power < 0)
     return out
 
 
@@ -159,6 +237,8 @@ def _prediction_columns(fit, new_x, level):
     lo, hi = ends(se_new)
     outside = ((X < fit.x_min) | (X > fit.x_max)).any(axis=1) & np.isfinite(X).all(axis=1)
     median = inv(eta)
+    mean = smeared_mean(fit, eta)
+    trust = mean_cautions(fit, eta, median, mean)
     notes = []
     for i in range(m):
         if not np.isfinite(X[i]).all():
@@ -174,11 +254,13 @@ def _prediction_columns(fit, new_x, level):
             parts.append("no finite value: the line is past the end this y power can reach")
         elif not np.isfinite(hi[i]):
             parts.append("the interval has no upper end at this y power")
+        if trust[i]:
+            parts.append(trust[i])
         if fit.n < FEW_ROWS:
             parts.append(f"only {fit.n} rows were used: treat with caution")
         notes.append("; ".join(parts))
     cols = {nm: X[:, j] for j, nm in enumerate(fit.x_names)}
-    cols.update(fitted=eta, median=median, mean=smeared_mean(fit, eta), mean_normal=normal_theory_mean(fit, eta),
+    cols.update(fitted=eta, median=median, mean=mean, mean_normal=normal_theory_mean(fit, eta),
                 line_low=line_lo, line_high=line_hi, low=lo, high=hi, outside_range=outside, note=notes)
     return cols
 
@@ -232,70 +314,13 @@ def predict(fit, new_x, level: float = 0.95) -> pd.DataFrame:
     return pd.DataFrame(prediction_columns(fit, new_x, level))
 
 
-def _pow(base: float, e: float) -> float:
-    """base ** e without an exception when it overflows (gives inf)."""
-    with np.errstate(over="ignore"):
-        return float(np.power(float(base), float(e)))
-
-
-def _n(v: float, digits: int = 4) -> str:
-    """A number for a sentence; overflow is said in words."""
-    if np.isnan(v):
-        return "an amount too extreme to compute"
-    if np.isinf(v):
-        return "more than 1e308 (too large to show)" if v > 0 else "less than -1e308 (too large to show)"
-    return f"{v:.{digits}g}"
-
-
-def _pct(mult: float) -> str:
-    ch = (mult - 1.0) * 100.0
-    return f"{'+' if ch >= 0 else ''}{ch:.3g}%"
-
-
-def _of(expr, name: str) -> str:
-    return name if expr.is_identity else f"{expr.label} of {name}"
-
-
 def slope_reading(fit) -> str:
-    """What each slope means in original units, in plain words (common-practice readings)."""
-    py, px = fit.y_power, fit.x_power
-    ylog = fit.y_expr.family == "ladder" and py == 0.0
-    xlog = px == 0.0
-    base_y = 10.0 if fit.y_expr.log10 else math.e
-    base_x = 10.0 if fit.x_expr.log10 else math.e
-    out = []
-    y = fit.y_name
-    for nm, b in zip(fit.x_names, fit.coef[1:]):
-        if ylog and xlog:
-            e = b * math.log(base_y) / math.log(base_x)
-            out.append(f"1% more {nm} goes with about {_n(e, 3)}% more {y} (doubling {nm} multiplies the typical "
-                       f"{y} by {_n(_pow(2.0, e))}).")
-        elif ylog and px == 1.0:
-            mult = _pow(base_y, b)
-            tail = f" ({_pct(mult)})" if np.isfinite(mult) else ""
-            out.append(f"each 1 unit more of {nm} multiplies the typical {y} by {_n(mult)}{tail}.")
-        elif ylog:
-            out.append(f"each 1 unit more of {_of(fit.x_expr, nm)} multiplies the typical {y} by {_n(_pow(base_y, b))}.")
-        elif fit.y_expr.is_identity and xlog:
-            out.append(f"doubling {nm} adds {_n(b * math.log(2) / math.log(base_x))} to {y}.")
-        elif fit.y_expr.is_identity and fit.x_expr.is_identity:
-            out.append(f"each 1 unit more of {nm} adds {_n(b)} to {y}.")
-        else:
-            out.append(f"each 1 unit more of {_of(fit.x_expr, nm)} changes {_of(fit.y_expr, y)} by {_n(b)}; "
-                       "in original units the change depends on where you are, so read it from the predictions.")
-    text = " ".join(out)
-    return text[0].upper() + text[1:] if text else text
+    """What each slope means in original units, in plain words (see :func:`unbend.wording.slope_reading`)."""
+    from .wording import slope_reading as words
+    return words(fit)
 
 
 def explain(fit) -> str:
-    """Two or three plain sentences about a fit, with cautions."""
-    if fit.y_expr.is_identity and fit.x_expr.is_identity:
-        first = f"A straight line of {fit.y_name} on {', '.join(fit.x_names)}, with no re-expression."
-    else:
-        first = f"A straight line of {_of(fit.y_expr, fit.y_name)} on {_of(fit.x_expr, ', '.join(fit.x_names))}."
-    parts = [first, fit.slope_reading(), fit.verdict]
-    if fit.n < FEW_ROWS:
-        parts.append(f"Only {fit.n} rows were usable, so treat all of this as tentative.")
-    lo = ", ".join(f"{a:.4g} to {b:.4g}" for a, b in zip(fit.x_min, fit.x_max))
-    parts.append(f"Predictions outside the observed x range ({lo}) are extrapolation.")
-    return " ".join(p for p in parts if p)
+    """A few plain sentences about a fit, with cautions (see :func:`unbend.wording.explain`)."""
+    from .wording import explain as words
+    return words(fit)

@@ -8,7 +8,8 @@ from scipy import stats
 
 from ._validation import UnbendError, as_matrix, as_vector, check_number, check_power, check_varies, usable_rows
 from .diagnostics import ALPHA, Check, make_check, normality_test, pattern_bins, pattern_test
-from .express import LADDER, Reexpression, rung_label
+from .express import LADDER, Reexpression, propose_start, rung_label
+from .wording import no_likelihood_words, scan_words
 from .power import _rungs
 from ._likelihood import dot
 from .fitting import fit as _fit, gaussian_loglik_with_jacobian
@@ -19,21 +20,18 @@ COLUMNS = ["rank", "y_power", "x_power", "y_rung", "x_rung", "loglik", "curvatur
            "normality_p", "r2", "r2_original", "verdict", "n"]
 
 
-def _short(f) -> str:
-    bad = []
-    if f.curvature.ran and not f.curvature.passed:
-        bad.append("curves")
-    elif f.pattern.ran and not f.pattern.passed:
-        bad.append("drifts with level")
-    if f.spread.ran and not f.spread.passed:
-        bad.append("fans out")
-    if not np.isfinite(f.loglik):
-        bad.append("has no comparable likelihood (y has zeros; add a start such as 0.5)")
-    if not f.curvature.ran:
-        return "too few rows to check"
-    if bad:
-        return "residuals " + " and ".join(bad).replace("curves", "curve").replace("fans", "fan").replace("drifts", "drift")
-    return "holds (no clear curvature, even spread)"
+def _no_likelihood(ty, yu, rss) -> str:
+    """Why a pair has no likelihood to rank it by, in a clause (see :func:`unbend.wording.no_likelihood_words`)."""
+    with np.errstate(over="ignore"):
+        v = yu + ty.start
+    has_zero = bool(np.any(v == 0))
+    hint = None
+    if has_zero:
+        try:
+            hint = propose_start(v, 0.0) + ty.start
+        except UnbendError:
+            hint = None
+    return no_likelihood_words(has_zero, not rss > 0, hint, ty.start)
 
 
 def scan(y, x, *, y_start=0.0, x_start=0.0, rungs=None, x_rungs=None) -> pd.DataFrame:
@@ -66,10 +64,15 @@ def scan(y, x, *, y_start=0.0, x_start=0.0, rungs=None, x_rungs=None) -> pd.Data
 
     Notes
     -----
-    Ranking: pairs whose residuals show no curvature and no pattern at the
-    5% level come first, each group ordered by log-likelihood. R² is shown but never used
-    to rank: it cannot be compared across y scales and a high R² can hide a
-    bend.
+    Ranking: pairs that could be fitted and have a likelihood come first;
+    among them, pairs whose residuals show no curvature (at
+    :data:`unbend.diagnostics.ALPHA`, 5%) and no pattern (at
+    :data:`unbend.diagnostics.PATTERN_ALPHA`, 1%) come before those that do,
+    each group ordered by log-likelihood. Pairs whose likelihood cannot be
+    computed (y with a zero at a power below 1, say) follow, with the reason
+    in their verdict, and pairs that cannot be fitted come last. R² is shown
+    but never used to rank: it cannot be compared across y scales and a high
+    R² can hide a bend.
 
     References
     ----------
@@ -103,7 +106,8 @@ def scan(y, x, *, y_start=0.0, x_start=0.0, rungs=None, x_rungs=None) -> pd.Data
             out = _scan_general(yu, Xu, y_rungs, x_rungs, y_start, x_start)
     t = pd.DataFrame(out)
     t["_ll"] = t["loglik"].where(np.isfinite(t["loglik"]), -np.inf)
-    t = t.sort_values(by=["_ok", "_curv", "_ll"], ascending=[False, False, False], kind="mergesort")
+    t["_lik"] = t["_ok"] & np.isfinite(t["_ll"])  # a pair with no likelihood never ranks above one with
+    t = t.sort_values(by=["_ok", "_lik", "_curv", "_ll"], ascending=[False, False, False, False], kind="mergesort")
     t = t.reset_index(drop=True)
     if t["_ok"].any():
         best = t.index[0]
@@ -121,13 +125,11 @@ def _impossible(rec, why):
     return rec
 
 
-def _record(rec, *, loglik, curvature, pattern, spread, normality, r2, r2_original):
-    class _F:  # the fields _short reads
-        pass
-    f = _F()
-    f.curvature, f.pattern, f.spread, f.loglik = curvature, pattern, spread, loglik
+def _record(rec, *, loglik, curvature, pattern, spread, normality, r2, r2_original, no_lik=""):
+    words = scan_words(curvature, pattern, spread, likelihood_why="" if np.isfinite(loglik) else no_lik,
+                       r2_original=r2_original)
     rec.update(loglik=loglik, curvature_p=curvature.pvalue, pattern_p=pattern.pvalue, spread_p=spread.pvalue,
-               normality_p=normality.pvalue, r2=r2, r2_original=r2_original, verdict=_short(f), _ok=True,
+               normality_p=normality.pvalue, r2=r2, r2_original=r2_original, verdict=words, _ok=True,
                _curv=curvature.passed is not False and pattern.passed is not False)
     return rec
 
@@ -248,7 +250,7 @@ def _pair_checks(out, rec, n, ty, yu, yt, resid, rss, tss, tss_orig, jac, q2, q3
         r2 = 1.0 - rss / tss if tss > 0 else np.nan
         ll = gaussian_loglik_with_jacobian(rss, n, jac, log_scale=2.0 * np.log(ybig))
         out.append(_record(rec, loglik=ll, curvature=curv, pattern=pat, spread=spr, normality=nor,
-                           r2=r2, r2_original=r2o))
+                           r2=r2, r2_original=r2o, no_lik="" if np.isfinite(ll) else _no_likelihood(ty, yu, rss)))
 
 
 def _scan_general(yu, Xu, y_rungs, x_rungs, y_start, x_start):
@@ -267,8 +269,9 @@ def _scan_general(yu, Xu, y_rungs, x_rungs, y_start, x_start):
             except UnbendError as e:
                 out.append(_impossible(rec, str(e)))
                 continue
+            no_lik = "" if np.isfinite(f.loglik) else _no_likelihood(f.y_expr, yu, f.resid_sd)
             out.append(_record(rec, loglik=f.loglik, curvature=f.curvature, pattern=f.pattern, spread=f.spread,
-                               normality=f.normality, r2=f.r2, r2_original=f.r2_original))
+                               normality=f.normality, r2=f.r2, r2_original=f.r2_original, no_lik=no_lik))
     return out
 
 

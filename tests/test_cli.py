@@ -251,8 +251,11 @@ def test_demo_prints_powers_scan_verdict_and_predictions(demo):
     out = demo["out"]
     # the river data are built as load = 0.8 * q^1.6 * lognormal (engine/demo_data.py): logs of both
     # straighten it, a known truth of the construction
-    assert re.search(r"Power for sediment_t_per_day: estimate .*Use log \(0\)", out.replace("\n", " "))
-    assert re.search(r"Power for discharge_m3s: estimate .*Use log \(0\)", out.replace("\n", " "))
+    flat = out.replace("\n", " ")
+    assert re.search(r"Power for sediment_t_per_day alone, with discharge_m3s at log: estimate .*?Log is the ladder "
+                     r"rung inside the interval nearest the estimate\. This is the rung the fit uses\.", flat)
+    assert re.search(r"Power for discharge_m3s alone, with sediment_t_per_day at log: estimate .*?Log is the ladder "
+                     r"rung inside the interval nearest the estimate\. This is the rung the fit uses\.", flat)
     assert "invented" in out
     lines = out.splitlines()
     i = next(k for k, ln in enumerate(lines) if ln.startswith("Scan, top 5 of"))
@@ -261,7 +264,8 @@ def test_demo_prints_powers_scan_verdict_and_predictions(demo):
     top = lines[i + 2].split()
     assert top[:3] == ["1", "log", "log"] and "best" in lines[i + 2]
     assert [ln.split()[0] for ln in lines[i + 2:i + 7]] == ["1", "2", "3", "4", "5"]
-    assert re.search(r"^Fit: a straight line of log of sediment_t_per_day on log of discharge_m3s\. ", out, re.M)
+    assert re.search(r"^Fit: a straight line of the log of sediment_t_per_day on the log of discharge_m3s\. ", out,
+                     re.M)
     j = next(k for k, ln in enumerate(lines) if ln.startswith("Predictions in original units"))
     assert lines[j + 1].split() == ["discharge_m3s", "median", "mean", "low", "high", "outside_range"]
     preds = []
@@ -440,7 +444,7 @@ def test_report_groups_spread_sheet(csv_run, survey):
 
 def test_report_prints_summary(csv_run):
     out = csv_run["out"]
-    for s in ("unbend summary", "Power for load:", "Power for discharge:", "Scan, top 5 of", "Fit: ",
+    for s in ("unbend summary", "Power for load alone", "Power for discharge alone", "Scan, top 5 of", "Fit: ",
               "Predictions in original units", "Files written:"):
         assert s in out
     assert str(csv_run["rep"]) in out

@@ -174,8 +174,8 @@ def test_explain_speaks_of_extrapolation():
     f = unbend.fit(y, X, y_power=0, x_power=0)
     text = f.explain()
     assert "extrapolation" in text
-    # common practice: on a log-log line the slope is an elasticity (percent per percent)
-    assert f"{f.coef[1]:.3g}% more y" in f.slope_reading()
+    # common practice: on a log-log line the slope is an elasticity (y varies as x to that power)
+    assert f"y varies as x to the power {f.coef[1]:.3g}" in f.slope_reading()
 
 
 @pytest.mark.parametrize("kind", ["numpy", "list", "pandas"])

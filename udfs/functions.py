@@ -18,6 +18,7 @@ import unbend
 from unbend import UnbendError
 from unbend.fitting import CAUTION
 from unbend.predicting import prediction_columns
+from unbend.wording import fitted_rung_words
 
 from . import cells, intake
 from .formula import model_formula
@@ -120,10 +121,10 @@ def _rows_table(pairs, header=("item", "value")):
 
 # --------------------------------------------------------------------------- functions
 
-@cell_function(y=_Y, x="Optional x range; leave out to get the power that makes y most symmetric.",
-               which='Optional: "y" (default) for the rung for y, "x" for the rung for x.')
+@cell_function(y=_Y, x="Optional x range; leave out to get the rung that makes y most symmetric.",
+               which='Optional: "y" (default) for the y rung of the pair, "x" for its x rung.')
 def UNBEND_POWER(y, x=None, which=None):
-    """The suggested ladder rung for y given x (or for x with which="x"): 2, 1, 0.5, 0 (log), -0.5, -1."""
+    """The y rung (or x rung with which="x") of the pair the scan ranks first, which UNBEND_FIT uses when powers are blank."""
     w = cells.optional_text(which, "which", ("y", "x"), "y")
     if x is None or (isinstance(x, str) and not x.strip()):
         if w == "x":
@@ -154,10 +155,11 @@ def UNBEND_SUGGEST(y, x=None):
     yp, xp = _cache.get_or_compute(("pair", yv, X, None, None, 0.0, 0.0), lambda: unbend.best_pair(yv, X))
     sy = _cache.get_or_compute(("sy", yv, X, xp), lambda: unbend.suggest_power(yv, X, x_power=xp))
     sx = _cache.get_or_compute(("sx", yv, X, yp), lambda: unbend.suggest_x_power(yv, X, y_power=yp))
+    table = _cache.get_or_compute(("scan", yv, X, 0.0, 0.0), lambda: unbend.scan(yv, X))
     rows = [_suggest_row(sy, rd), _suggest_row(sx, rd)]
     note = _SUGGEST_HEADER.index("note")
-    rows[0][note] = f"(given x at power {xp:g}) " + rows[0][note]
-    rows[1][note] = f"(given y at power {yp:g}) " + rows[1][note]
+    rows[0][note] = f"(given x at power {xp:g}) {rows[0][note]} {fitted_rung_words(sy, yp, xp, table)}"
+    rows[1][note] = f"(given y at power {yp:g}) {rows[1][note]} {fitted_rung_words(sx, xp, yp, table)}"
     rows.append(["scan's best pair", "", "", "", "", f"y {unbend.rung_label(yp)}, x {unbend.rung_label(xp)}",
                  "", "", "the pair UNBEND_FIT and UNBEND_PREDICT use when the powers are left blank"])
     return cells.table(_SUGGEST_HEADER, rows)

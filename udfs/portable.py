@@ -55,6 +55,8 @@ import pandas as pd
 import unbend
 from unbend import UnbendError
 from unbend._validation import check_level, check_power
+from unbend.predicting import MEAN_FAR, MEAN_FEW_MIN, MEAN_FEW_SHARE
+from unbend.wording import MEAN_FAR_WORDS, MEAN_FEW_WORDS, MEAN_UNBOUNDED, MEAN_UNTRUSTED
 
 from .xlsx import Column, Style, clean_text
 
@@ -267,6 +269,25 @@ def _smeared(z: str, p: str, s: str, mask: str, res: str, n: str, factor: str) -
     return f"IF({p}=0,EXP({z})*{factor}-{s},IF({p}>0,{pos},{neg}))"
 
 
+def _mean_caution(median: str, mean: str, z: str, p: str, mask: str, res: str, n: str) -> str:
+    """The engine's note for a smearing mean that cannot be trusted, in formulas (see
+    :func:`unbend.predicting.mean_cautions`): unbounded, more than MEAN_FAR times the median, or resting on a
+    few residuals (Kish's effective number of terms below MEAN_FEW_SHARE of the rows or MEAN_FEW_MIN)."""
+    zz = f"({z}+{res})"
+    odd = f"AND({p}=INT({p}),MOD({p},2)=1)"
+    term = (f"IF({p}=0,EXP({res}),IF({p}>0,IF({odd},SIGN{zz}*ABS{zz}^(1/{p}),(({zz}+ABS{zz})/2)^(1/{p})),"
+            f"(-{zz})^(1/{p})))")
+    neff = f"SUMPRODUCT({mask},{term})^2/SUMPRODUCT({mask},{term}^2)"
+    few = f"IFERROR({neff}<MAX({MEAN_FEW_MIN},{MEAN_FEW_SHARE}*{n}),FALSE)"
+    far = f"AND(ISNUMBER({mean}),{median}>0,IFERROR({mean}/{median}>{MEAN_FAR},FALSE))"
+    far_w = MEAN_FAR_WORDS.format(far=MEAN_FAR)
+    few_w = MEAN_FEW_WORDS.replace("{n}", '"&' + n + '&"')
+    untrusted = MEAN_UNTRUSTED.replace("{why}", f'"&IF({far},"{far_w}","")&IF(AND({far},{few}),"; ","")'
+                                                f'&IF({few},"{few_w}","")&"')
+    return (f'IF(OR({p}=1,NOT(ISNUMBER({median}))),"",IF({mean}="unbounded","{MEAN_UNBOUNDED}",'
+            f'IF(OR({far},{few}),"{untrusted}","")))')
+
+
 def _abs(coord: str) -> str:
     m = re.fullmatch(r"([A-Z]+)([0-9]+)", coord)
     return f"${m.group(1)}${m.group(2)}"
@@ -314,6 +335,9 @@ def _new_formulas(r: int, first: int, last: int) -> dict:
     o_txt = f'IF({N["outside"]}="yes","outside the observed x range: extrapolation","")'
     b_txt = (f'IF({N["median"]}="unbounded","no finite value: the line is past the end this y power can reach",'
              f'IF({N["high"]}="unbounded","the interval has no upper end at this y power",""))')
+    m_txt = _mean_caution(N["median"], N["mean"], z, yp, mask, res, n)
+    ob = f'{o_txt}&IF(AND({o_txt}<>"",{b_txt}<>""),"; ","")&{b_txt}'
+    parts = f'{ob}&IF(AND(({ob})<>"",{m_txt}<>""),"; ","")&{m_txt}'
     return {
         "x_re": f'=IF({nx}="","",IF(ISNUMBER({nx}),IFERROR({x_re},"cannot re-express"),"not a number"))',
         "fitted": f'=IF(ISNUMBER({xr}),{a}+{b}*{xr},"")',
@@ -331,7 +355,7 @@ def _new_formulas(r: int, first: int, last: int) -> dict:
         "outside": f'=IF(ISNUMBER({nx}),IF(OR({nx}<{xmin},{nx}>{xmax}),"yes","no"),"")',
         "note": (f'=IF({nx}="","",IF(NOT(ISNUMBER({nx})),"x is not a number",'
                  f'IF(NOT(ISNUMBER({xr})),"x cannot be re-expressed at this power",'
-                 f'IF(AND({o_txt}<>"",{b_txt}<>""),{o_txt}&"; "&{b_txt},{o_txt}&{b_txt}))))'),
+                 f'{parts})))'),
     }
 
 

@@ -10,6 +10,7 @@ import pandas as pd
 import unbend
 from unbend import DomainError, UnbendError
 from unbend.fitting import CAUTION
+from unbend.wording import fitted_rung_words, line_words
 
 from . import cells
 from .plots import PLOT_FILES  # noqa: F401  (the plot files write_plots writes, in its folder)
@@ -214,8 +215,11 @@ def _fmt(v) -> str:
 
 def _note(s) -> str:
     """The suggestion's note without its skipped-rows sentence (the summary lists those once)."""
-    note = s.note.split(f" {s.skipped} row(s) skipped")[0] if s.skipped else s.note
-    return note[0].lower() + note[1:]
+    return s.note.split(f" {s.skipped} row(s) skipped")[0] if s.skipped else s.note
+
+
+def _cap(text: str) -> str:
+    return text[:1].upper() + text[1:]
 
 
 def summary_lines(a: Analysis) -> list:
@@ -234,18 +238,27 @@ def summary_lines(a: Analysis) -> list:
     elif f.skipped:
         out.append("Skipped: " + "; ".join(f"row {r}: {why}" for r, why in f.skipped[:5])
                    + ("; ..." if len(f.skipped) > 5 else "") + ".")
-    names = {"y": a.y_name, "x": ", ".join(a.x_names)}
-    for s in (a.suggest_y, a.suggest_x):
-        if s is None:
-            continue
-        out.append(f"Power for {names.get(s.what, s.what)}: estimate {_fmt(s.estimate)}, {s.level:.0%} interval "
-                   f"{_fmt(s.low)} to {_fmt(s.high)}. Use {s.label} ({s.rung:g}): {_note(s)}")
-    out.extend(a.notes)
     top = a.scan.iloc[0]
-    out.append(f"The scan of {len(a.scan)} pairs of rungs ranks {top.y_rung} of {a.y_name} with {top.x_rung} of "
-               f"{names['x']} first (ranked on likelihood, with pairs whose residuals still curve pushed down; "
-               "never on R\u00b2).")
-    out.append(f"Fit: {f.explain().split('. ', 1)[0].replace('A straight line', 'a straight line')}. {f.verdict}")
+    if top.y_power == f.y_power and top.x_power == f.x_power:
+        out.append(f"Fit: a straight line of {line_words(f)}. This is the pair of rungs the scan ranks first of "
+                   f"{len(a.scan)} (ranked on the likelihood, with pairs whose residuals curve or drift pushed down; "
+                   "never on R\u00b2).")
+    else:
+        out.append(f"Fit: a straight line of {line_words(f)}, at the powers given. The scan of {len(a.scan)} pairs "
+                   f"of rungs ranks {top.y_rung} of {a.y_name} with {top.x_rung} of {', '.join(a.x_names)} first "
+                   "(ranked on the likelihood, with pairs whose residuals curve or drift pushed down; never on "
+                   "R\u00b2).")
+    xs = " and ".join(a.x_names)
+    for s, name, fitted, other, given in (
+            (a.suggest_y, a.y_name, f.y_power, f.x_power, f"{xs} at {f.x_expr.label}"),
+            (a.suggest_x, xs, f.x_power, f.y_power, f"{a.y_name} at {f.y_expr.label}")):
+        if s is None:  # not estimable on these data; a note says why
+            continue
+        out.append(f"Power for {name} alone, with {given}: estimate {_fmt(s.estimate)}, {s.level:.0%} interval "
+                   f"{_fmt(s.low)} to {_fmt(s.high)}. {_cap(_note(s))} "
+                   + fitted_rung_words(s, fitted, other, a.scan, name))
+    out.extend(a.notes)
+    out.append(f.verdict)
     out.append(f.slope_reading())
     for w in f.warnings:
         if not w.startswith(f"{f.n_skipped} row(s) skipped"):

@@ -26,8 +26,11 @@ SCAN_HEADERS = {
 }
 
 SCAN_HELP = ("Ranked on the log-likelihood in the units of y (comparable across y powers), with pairs whose "
-             "residuals curve or drift pushed down; R\u00b2 is shown but never used to rank. R\u00b2 in original "
-             "units compares the back-transformed line with y: it can fall below 0 when that line misses badly, "
+             "residuals curve or drift pushed down, then pairs with no likelihood to rank them by (the verdict "
+             "says why), then pairs that cannot be fitted; R\u00b2 is shown but never used to rank. "
+             "\"No clear sign\" means the check found nothing at its level, not that the line is right. "
+             "R\u00b2 in original units compares the back-transformed line with y: it falls below 0 when that "
+             "line misses y badly (often near the end of a reciprocal scale, where small steps become huge), "
              "and is blank when it cannot be computed.")
 
 
