@@ -1,0 +1,324 @@
+"""What the desktop spreadsheet program hands over, turned into the common cell vocabulary.
+
+The Windows spreadsheet program calls a cell function through xlwings' COM server. Each argument
+reaches Python either as a Range (a reference: ``A:A``, ``Data[load]``, ``F2``) or as a plain value
+(a literal, an array constant, another formula's result), in pywin32's shapes:
+
+* one cell is a scalar; a block is a tuple of rows, each a tuple of cells;
+* an empty cell is ``None``; a number is ``float``; text is ``str``; TRUE/FALSE is ``bool``;
+* a date is pywin32's ``TimeType``, a ``datetime`` subclass carrying a UTC time zone;
+* a cell formatted as currency is ``decimal.Decimal`` (COM's currency type);
+* a cell error is an ``int``: the COM error code 0x800A0000 plus Excel's error number.
+
+This module turns those into the vocabulary the rest of ``unbend.udfs`` reads (:mod:`.cells`):
+``None`` for a blank (empty text included, as xlwings does), ``float``, ``str``, ``bool``, a naive
+``datetime``, and every error value as its text (``"#N/A"``, ``"#SPILL!"`` ...), so that no error
+code can be read as a number and every one is skipped and counted as an error value. A block made
+only of numbers comes back as a float array (the fast path); anything else as a list of rows.
+
+It also holds the xlwings converters the cell functions use (see ``functions.cell_function``):
+
+* :class:`HostCells` reads a reference itself: whole columns, whole rows and other large
+  references are first cut at the end of the sheet's used range (``Worksheet.UsedRange``), so
+  ``A:A`` costs what its filled part costs; the values are then taken raw (``Range.Value``) and
+  normalised here in one pass, skipping xlwings' per-cell cleaning. Plain values are normalised the
+  same way.
+* :class:`HostReference` keeps a reference as a reference (like xlwings' ``"range"`` converter),
+  for arguments that want a cell's address rather than its value; a plain value is normalised.
+* :class:`HostResult` hands a result back in a shape COM can carry: a rectangle of rows of
+  ``float``/``int``/``str``/``bool`` (dates through xlwings' own date conversion), with no NaN or
+  infinity, skipping xlwings' per-cell cleaning on the way out too.
+
+Nothing here needs Windows: the module imports ``xlwings.conversion``, which imports everywhere.
+"""
+from __future__ import annotations
+
+import datetime as _dt
+import decimal
+import itertools
+import math
+
+import numpy as np
+from xlwings.conversion import Accessor, Pipeline
+
+__all__ = [
+    "ERROR_NAMES",
+    "COM_ERROR_BASE",
+    "error_name",
+    "is_error_code",
+    "normalise",
+    "read_range",
+    "HostProblem",
+    "HostCells",
+    "HostReference",
+    "HostResult",
+    "TRIM_ABOVE",
+]
+
+#: A cell error arrives as this COM error code plus Excel's error number (0x800A0000 as a signed
+#: 32-bit integer). source: xlwings' own ``_xlwindows.cell_errors`` table (#DIV/0! 2007 arrives as
+#: -2146826281 = COM_ERROR_BASE + 2007; the six other classic errors follow the same rule).
+COM_ERROR_BASE = -2146828288
+_ERROR_LAST = COM_ERROR_BASE + 0xFFFF  # the error number is the low 16 bits of the code
+
+#: Excel's error numbers and the text a cell shows.
+#: source: Microsoft's XlCVError enumeration for the Excel object model (xlErrNull 2000, xlErrDiv0
+#: 2007, xlErrValue 2015, xlErrRef 2023, xlErrName 2029, xlErrNum 2036, xlErrNA 2042,
+#: xlErrGettingData 2043, xlErrSpill 2045, xlErrConnect 2046, xlErrBlocked 2047, xlErrUnknown 2048,
+#: xlErrField 2049, xlErrCalc 2050), as listed in the com4j type-library bindings for Excel
+#: (repository exceljava, com/exceljava/com4j/excel/XlCVError.java).
+#: 2051 (#BUSY!) is not in that enumeration; source: a public test suite that observed
+#: Range.Value2 = -2146826237 for a #BUSY! cell. Any other code in the error range (a newer error
+#: Excel may add) is still an error value: see :func:`error_name`.
+ERROR_NAMES = {
+    2000: "#NULL!",
+    2007: "#DIV/0!",
+    2015: "#VALUE!",
+    2023: "#REF!",
+    2029: "#NAME?",
+    2036: "#NUM!",
+    2042: "#N/A",
+    2043: "#GETTING_DATA",
+    2045: "#SPILL!",
+    2046: "#CONNECT!",
+    2047: "#BLOCKED!",
+    2048: "#UNKNOWN!",
+    2049: "#FIELD!",
+    2050: "#CALC!",
+    2051: "#BUSY!",
+}
+#: The text given to an error number that has no name here; it is an error value all the same.
+UNNAMED_ERROR = "#N/A"
+
+#: References with more cells than this are cut at the end of the sheet's used range before their
+#: values are read (a smaller one is read as it is: the cut costs a few round trips of its own).
+TRIM_ABOVE = 4096
+
+_UTC_NAIVE = None
+
+
+def is_error_code(v) -> bool:
+    """True for an ``int`` (not a bool) in the range COM uses for cell errors."""
+    return type(v) is int and COM_ERROR_BASE <= v <= _ERROR_LAST
+
+
+def error_name(code: int) -> str:
+    """The text of a cell error code, e.g. -2146826243 -> ``"#SPILL!"``.
+
+    Codes without a name here (errors newer than this table) are given ``"#N/A"``: the reading
+    rules skip them as error values like any other, which is all that matters for the numbers.
+    """
+    return ERROR_NAMES.get(code - COM_ERROR_BASE, UNNAMED_ERROR)
+
+
+def _cell(v):
+    """One value as pywin32 hands it over -> the common vocabulary."""
+    t = type(v)
+    if t is float or v is None or t is bool:
+        return v
+    if t is str:
+        return v if v else None  # an empty text (a formula returning "") reads as a blank, as in xlwings
+    if t is int:
+        if COM_ERROR_BASE <= v <= _ERROR_LAST:
+            return error_name(v)
+        return float(v)
+    if isinstance(v, decimal.Decimal):  # a currency-formatted cell
+        return float(v)
+    if isinstance(v, _dt.datetime):  # pywin32's TimeType (UTC-labelled wall time) or a plain datetime
+        return _dt.datetime(v.year, v.month, v.day, v.hour, v.minute, v.second, v.microsecond)
+    if isinstance(v, _dt.date):
+        return _dt.datetime(v.year, v.month, v.day)
+    if isinstance(v, str):
+        return str(v) or None
+    if isinstance(v, bool):
+        return bool(v)
+    if isinstance(v, float):
+        return float(v)
+    if isinstance(v, int):
+        return _cell(int(v))
+    if isinstance(v, np.generic):
+        return _cell(v.item())
+    return str(v)
+
+
+_PLAIN = frozenset({float, str, type(None), bool})
+
+
+def normalise(value):
+    """What the host handed over -> the common cell vocabulary.
+
+    Parameters
+    ----------
+    value : scalar, tuple of rows, flat tuple or list
+        As pywin32 gives it (``Range.Value``, or an argument that is not a reference).
+
+    Returns
+    -------
+    scalar, numpy.ndarray or list of lists
+        One value for one cell. For a block: a new 2-D float array when every cell is a number
+        (the fast path), otherwise a list of rows of ``None``/``float``/``str``/``bool``/``datetime``
+        with error values as their text. A flat sequence is one row (as xlwings reads it).
+    """
+    if not isinstance(value, (tuple, list)):
+        return _cell(value)
+    if not value:
+        return [[None]]
+    rows = value if isinstance(value[0], (tuple, list)) else (value,)
+    width = len(rows[0])
+    if any(len(r) != width for r in rows):  # not from a Range; pad as a block
+        width = max(map(len, rows))
+        rows = [tuple(r) + (None,) * (width - len(r)) for r in rows]
+    flat = list(itertools.chain.from_iterable(rows))
+    kinds = set(map(type, flat))
+    if kinds == {float}:  # every cell a number: one C-speed conversion, no per-cell work
+        return np.array(flat, dtype=float).reshape(len(rows), width)
+    if kinds <= _PLAIN and "" not in flat:  # already in the vocabulary
+        return [list(r) for r in rows]
+    cells = list(map(_cell, flat))
+    return [cells[i:i + width] for i in range(0, len(cells), width)]
+
+
+class HostProblem:
+    """An argument that could not be read; the cell function turns it into an ``unbend:`` message."""
+
+    __slots__ = ("message",)
+
+    def __init__(self, message: str):
+        self.message = message
+
+    def __repr__(self):
+        return f"HostProblem({self.message!r})"
+
+
+def read_range(rng):
+    """The values of a reference, cut at the end of the sheet's used range, normalised.
+
+    Parameters
+    ----------
+    rng : xlwings.Range
+        As xlwings' conversion hands it to a converter (``ctx.range``).
+
+    Returns
+    -------
+    scalar, numpy.ndarray, list of lists or HostProblem
+        As :func:`normalise`. A reference of more than one cell always gives a block (never a
+        scalar), even when the used range leaves one cell of it.
+    """
+    xl = rng.api
+    rows, cols = xl.Rows.Count, xl.Columns.Count
+    if rows == 1 and cols == 1:
+        return normalise(xl.Value)
+    if xl.Areas.Count > 1:
+        return HostProblem("give one block of cells; the reference has several separate areas.")
+    if rows * cols > TRIM_ABOVE:
+        used = xl.Worksheet.UsedRange
+        last_row = used.Row + used.Rows.Count - 1
+        last_col = used.Column + used.Columns.Count - 1
+        n = min(rows, last_row - xl.Row + 1)
+        m = min(cols, last_col - xl.Column + 1)
+        if n <= 0 or m <= 0:  # the whole reference lies beyond the used range: all blank
+            return [[None] * (cols if cols <= 256 else 1)]
+        if (n, m) != (rows, cols):
+            xl = xl.Resize(n, m)
+    value = xl.Value
+    if not isinstance(value, (tuple, list)):
+        value = ((value,),)
+    return normalise(value)
+
+
+def _problem(exc) -> HostProblem:
+    text = " ".join(str(exc).split()) or type(exc).__name__
+    return HostProblem(f"the spreadsheet program could not hand the cells over ({text[:120]}).")
+
+
+class _ReadStage:
+    def __init__(self, keep_reference: bool):
+        self.keep_reference = keep_reference
+
+    def __call__(self, ctx):
+        try:
+            if ctx.range is None:
+                ctx.value = normalise(ctx.value)
+            elif self.keep_reference:
+                ctx.value = ctx.range
+            else:
+                ctx.value = read_range(ctx.range)
+        except Exception as exc:  # a COM failure: say so in the cell instead of a bare error
+            ctx.value = _problem(exc)
+
+
+class HostCells(Accessor):
+    """xlwings converter: a reference's values read fast (see the module notes), plain values normalised."""
+
+    @classmethod
+    def reader(cls, options):
+        return Pipeline().append_stage(_ReadStage(keep_reference=False))
+
+
+class HostReference(Accessor):
+    """xlwings converter: a reference stays an ``xlwings.Range``; a plain value is normalised."""
+
+    @classmethod
+    def reader(cls, options):
+        return Pipeline().append_stage(_ReadStage(keep_reference=True))
+
+
+_INF = float("inf")
+_COM_PLAIN = frozenset({float, str, int, bool})
+
+
+def _out_cell(v, engine):
+    t = type(v)
+    if t is float:
+        return v if (v == v and v != _INF and v != -_INF) else ""
+    if t is str or t is bool or t is int:
+        return v
+    if v is None:
+        return ""
+    if isinstance(v, np.generic):
+        return _out_cell(v.item(), engine)
+    if isinstance(v, (_dt.date, _dt.datetime)):
+        return engine.impl.prepare_xl_data_element(v, None)  # xlwings' own date conversion for COM
+    if isinstance(v, bool):
+        return bool(v)
+    if isinstance(v, int):
+        return int(v)
+    if isinstance(v, float):
+        return _out_cell(float(v), engine)
+    if isinstance(v, decimal.Decimal):
+        return _out_cell(float(v), engine)
+    return " ".join(str(v).split())
+
+
+class _WriteStage:
+    def __call__(self, ctx):
+        value = ctx.value
+        if isinstance(value, np.ndarray):
+            value = value.tolist()
+        if not isinstance(value, (list, tuple)):
+            rows = [[value]]
+        elif not value:
+            rows = [[""]]
+        elif not isinstance(value[0], (list, tuple)):
+            rows = [list(value)]
+        else:
+            rows = value
+        width = max(map(len, rows))
+        engine = ctx.engine
+        out = []
+        for r in rows:
+            r = list(r)
+            if not set(map(type, r)) <= _COM_PLAIN or any(v != v or v in (_INF, -_INF) for v in r if type(v) is float):
+                r = [_out_cell(v, engine) for v in r]
+            if len(r) < width:
+                r += [""] * (width - len(r))
+            out.append(r)
+        ctx.value = out
+
+
+class HostResult(Accessor):
+    """xlwings return converter: a rectangle of COM-safe cells, without per-cell cleaning of plain ones."""
+
+    @classmethod
+    def writer(cls, options):
+        return Pipeline().append_stage(_WriteStage())
