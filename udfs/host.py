@@ -36,7 +36,7 @@ from __future__ import annotations
 import datetime as _dt
 import decimal
 import itertools
-import math
+import re
 
 import numpy as np
 from xlwings.conversion import Accessor, Pipeline
@@ -90,12 +90,13 @@ ERROR_NAMES = {
 #: The text given to an error number that has no name here; it is an error value all the same.
 UNNAMED_ERROR = "#N/A"
 
-#: References with more cells than this are cut at the end of the sheet's used range before their
-#: values are read (a smaller one is read as it is: the cut costs a few round trips of its own).
-TRIM_ABOVE = 4096
-
-_UTC_NAIVE = None
-
+#: References with at least this many cells, or that reach the sheet's last row or column (whole
+#: columns and rows), are cut at the end of the sheet's used range before their values are read; a
+#: smaller one is read as it is (the cut costs round trips of its own, and a table column lies inside
+#: the used range anyway).
+TRIM_ABOVE = 65_536
+SHEET_ROWS = 1_048_576  # rows and columns of a worksheet (common practice: the sheet limits since 2007)
+SHEET_COLUMNS = 16_384
 
 def is_error_code(v) -> bool:
     """True for an ``int`` (not a bool) in the range COM uses for cell errors."""
@@ -190,8 +191,40 @@ class HostProblem:
         return f"HostProblem({self.message!r})"
 
 
+_ADDRESS = re.compile(r"^\$?([A-Z]{1,3})?\$?(\d+)?(?::\$?([A-Z]{1,3})?\$?(\d+)?)?$")
+
+
+def _last_cell(address: str):
+    """(last row, last column) of an A1-style address such as "$A$1:$D$120", "$A:$D" or "$B$7"."""
+    m = _ADDRESS.match(address.strip().upper())
+    if not m:
+        return None
+    c1, r1, c2, r2 = m.groups()
+    if ":" not in address:
+        c2, r2 = c1, r1
+    row = int(r2) if r2 else SHEET_ROWS
+    col = _column_number(c2) if c2 else SHEET_COLUMNS
+    return row, col
+
+
+def _column_number(letters: str) -> int:
+    n = 0
+    for ch in letters:
+        n = n * 26 + ord(ch) - 64
+    return n
+
+
+def _needs_cut(row, col, rows, cols) -> bool:
+    return rows * cols >= TRIM_ABOVE or row + rows - 1 >= SHEET_ROWS or col + cols - 1 >= SHEET_COLUMNS
+
+
 def read_range(rng):
     """The values of a reference, cut at the end of the sheet's used range, normalised.
+
+    Round trips to the program: one for a single cell (its value); three for a small block (its
+    number of areas, its values); six for a whole column or another large reference (also the used
+    range's address and the cut). The reference's position and size come from what xlwings has
+    already asked for (``Range.shape``, ``row``, ``column``, ``sheet``).
 
     Parameters
     ----------
@@ -205,21 +238,21 @@ def read_range(rng):
         scalar), even when the used range leaves one cell of it.
     """
     xl = rng.api
-    rows, cols = xl.Rows.Count, xl.Columns.Count
+    rows, cols = rng.shape
     if rows == 1 and cols == 1:
         return normalise(xl.Value)
     if xl.Areas.Count > 1:
         return HostProblem("give one block of cells; the reference has several separate areas.")
-    if rows * cols > TRIM_ABOVE:
-        used = xl.Worksheet.UsedRange
-        last_row = used.Row + used.Rows.Count - 1
-        last_col = used.Column + used.Columns.Count - 1
-        n = min(rows, last_row - xl.Row + 1)
-        m = min(cols, last_col - xl.Column + 1)
-        if n <= 0 or m <= 0:  # the whole reference lies beyond the used range: all blank
-            return [[None] * (cols if cols <= 256 else 1)]
-        if (n, m) != (rows, cols):
-            xl = xl.Resize(n, m)
+    row, col = rng.row, rng.column
+    if _needs_cut(row, col, rows, cols):
+        last = _last_cell(rng.sheet.api.UsedRange.Address)
+        if last is not None:
+            n = min(rows, last[0] - row + 1)
+            m = min(cols, last[1] - col + 1)
+            if n <= 0 or m <= 0:  # the whole reference lies beyond the used range: all blank
+                return [[None] * (cols if cols <= 256 else 1)]
+            if (n, m) != (rows, cols):
+                xl = xl.Resize(n, m)
     value = xl.Value
     if not isinstance(value, (tuple, list)):
         value = ((value,),)
