@@ -155,26 +155,27 @@ def normalise(value):
 
     Returns
     -------
-    scalar, numpy.ndarray or list of lists
+    scalar, numpy.ndarray or sequence of rows
         One value for one cell. For a block: a new 2-D float array when every cell is a number
-        (the fast path), otherwise a list of rows of ``None``/``float``/``str``/``bool``/``datetime``
-        with error values as their text. A flat sequence is one row (as xlwings reads it).
+        (the fast path), otherwise a sequence of rows (lists, or the tuples as they came when they
+        need no change) of ``None``/``float``/``str``/``bool``/``datetime`` with error values as
+        their text. A flat sequence is one row (as xlwings reads it).
     """
     if not isinstance(value, (tuple, list)):
         return _cell(value)
     if not value:
         return [[None]]
     rows = value if isinstance(value[0], (tuple, list)) else (value,)
-    width = len(rows[0])
-    if any(len(r) != width for r in rows):  # not from a Range; pad as a block
-        width = max(map(len, rows))
+    widths = set(map(len, rows))
+    width = max(widths)
+    if len(widths) > 1:  # not from a Range (those are rectangular): pad as a block
         rows = [tuple(r) + (None,) * (width - len(r)) for r in rows]
     flat = list(itertools.chain.from_iterable(rows))
     kinds = set(map(type, flat))
     if kinds == {float}:  # every cell a number: one C-speed conversion, no per-cell work
         return np.array(flat, dtype=float).reshape(len(rows), width)
-    if kinds <= _PLAIN and "" not in flat:  # already in the vocabulary
-        return [list(r) for r in rows]
+    if kinds <= _PLAIN and "" not in flat:  # already in the vocabulary: the rows as they came
+        return rows
     cells = list(map(_cell, flat))
     return [cells[i:i + width] for i in range(0, len(cells), width)]
 

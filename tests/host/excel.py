@@ -271,14 +271,19 @@ class Worksheet(Com):
 
     @property
     def UsedRange(self):
-        if not self._cells:
-            return Range(self, 1, 1, 1, 1)
-        rows = [k[0] for k in self._cells]
-        cols = [k[1] for k in self._cells]
-        r0, c0 = min(rows), min(cols)
-        r1 = min(SHEET_ROWS, max(rows) + self._extra_used[0])
-        c1 = min(SHEET_COLS, max(cols) + self._extra_used[1])
-        return Range(self, r0, c0, r1 - r0 + 1, c1 - c0 + 1)
+        box = self._cache.get("used")
+        if box is None:  # worked out once per change of the sheet: the program keeps it at hand too
+            if not self._cells:
+                box = (1, 1, 1, 1)
+            else:
+                rows = [k[0] for k in self._cells]
+                cols = [k[1] for k in self._cells]
+                r0, c0 = min(rows), min(cols)
+                r1 = min(SHEET_ROWS, max(rows) + self._extra_used[0])
+                c1 = min(SHEET_COLS, max(cols) + self._extra_used[1])
+                box = (r0, c0, r1 - r0 + 1, c1 - c0 + 1)
+            self._cache["used"] = box
+        return Range(self, *box)
 
     def Range(self, cell1, cell2=None):
         if isinstance(cell1, str):

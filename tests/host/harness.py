@@ -37,16 +37,23 @@ def _owned(name: str) -> bool:
 
 @contextlib.contextmanager
 def windows_mode(modules: dict):
-    """Put the Windows-mode modules (and the stand-ins) in ``sys.modules`` for the duration."""
-    saved = {k: v for k, v in sys.modules.items() if _owned(k)}
-    for k in saved:
-        del sys.modules[k]
+    """Put the Windows-mode modules (and the stand-ins) in ``sys.modules`` for the duration.
+
+    Cheap enough to wrap every call: only the known names are swapped, and ``sys.modules`` is
+    scanned again only when something was imported meanwhile.
+    """
+    names = list(modules)
+    saved = {k: sys.modules.pop(k) for k in names if k in sys.modules}
+    size = len(sys.modules)
     sys.modules.update(modules)
     try:
         yield
     finally:
-        for k in [k for k in sys.modules if _owned(k)]:
-            modules[k] = sys.modules.pop(k)  # keep modules imported meanwhile with the Windows set
+        if len(sys.modules) != size + len(modules):  # something new was imported: keep it in the set
+            for k in [k for k in sys.modules if _owned(k)]:
+                modules[k] = sys.modules[k]
+        for k in list(modules):
+            sys.modules.pop(k, None)
         sys.modules.update(saved)
 
 

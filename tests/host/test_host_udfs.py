@@ -26,6 +26,7 @@ import pytest
 import unbend.udfs as U
 
 from . import excel
+from .checks import as_com, check_com
 from .harness import Host, load
 
 ROOT = Path(__file__).resolve().parents[2]
@@ -48,38 +49,6 @@ def classic_errors():
 
 def every_error_code():
     return sorted(classic_errors()) + [BASE + n for n in NEWER_ERRORS] + UNNAMED_CODES
-
-
-# ----------------------------------------------------------------------------- what COM can carry
-
-COM_TYPES = (float, int, str, bool, type(None), dt.datetime)
-
-
-def check_com(out):
-    """A result COM can carry: a scalar, one row, or a rectangle of rows; plain types; no NaN or inf."""
-    if isinstance(out, list):
-        rows = out if out and isinstance(out[0], list) else [out]
-        assert rows and len({len(r) for r in rows}) == 1, "not rectangular"
-        cells = [v for r in rows for v in r]
-    else:
-        cells = [out]
-    for v in cells:
-        assert type(v) in COM_TYPES, (type(v), v)
-        if type(v) is float:
-            assert math.isfinite(v), v
-        if isinstance(v, str) and v.startswith("unbend:"):
-            assert "\n" not in v and "unexpected problem" not in v, v
-    return out
-
-
-def as_com(direct):
-    """The direct result in the shape XLPython.CallUDF hands to COM (a 1 x 1 table is one value)."""
-    rows = direct if isinstance(direct, list) else [[direct]]
-    if len(rows) == 1 and len(rows[0]) == 1:
-        return rows[0][0]
-    if len(rows) == 1:
-        return rows[0]
-    return rows
 
 
 def vocabulary(v):
@@ -242,16 +211,13 @@ def test_a_block_of_two_x_columns(book, name, trees_cols):
     vol, girth, height = trees_cols
     s = book.sheet
     Y, X = s.ref("E2:E32"), s.ref("F2:G32")
-    new_host, new_direct = s.put("K2", [[10.0, 70.0], [15.0, 80.0]]), [[10.0, 70.0], [15.0, 80.0]]
-    args = {"UNBEND_POWER": ((Y, X), (vol, [list(r) for r in zip(girth, height)])),
-            }.get(name)
-    direct_x = [list(r) for r in zip(girth, height)]
-    host_args = {"UNBEND_PREDICT": (Y, X, new_host, 0.0, 0.0), "UNBEND_FIT": (Y, X, 0.0, 0.0),
-                 "UNBEND_RESIDUALS": (Y, X, 0.0, 0.0), "UNBEND_EXPLAIN": (Y, X, 0.0, 0.0)}.get(name, (Y, X))
-    direct_args = {"UNBEND_PREDICT": (vol, direct_x, new_direct, 0.0, 0.0), "UNBEND_FIT": (vol, direct_x, 0.0, 0.0),
-                   "UNBEND_RESIDUALS": (vol, direct_x, 0.0, 0.0),
-                   "UNBEND_EXPLAIN": (vol, direct_x, 0.0, 0.0)}.get(name, (vol, direct_x))
-    del args
+    new = s.put("K2", [[10.0, 70.0], [15.0, 80.0]])
+    dx, dnew = [list(r) for r in zip(girth, height)], [[10.0, 70.0], [15.0, 80.0]]
+    pinned = (0.0, 0.0)
+    host_args = {"UNBEND_PREDICT": (Y, X, new) + pinned, "UNBEND_FIT": (Y, X) + pinned,
+                 "UNBEND_RESIDUALS": (Y, X) + pinned, "UNBEND_EXPLAIN": (Y, X) + pinned}.get(name, (Y, X))
+    direct_args = {"UNBEND_PREDICT": (vol, dx, dnew) + pinned, "UNBEND_FIT": (vol, dx) + pinned,
+                   "UNBEND_RESIDUALS": (vol, dx) + pinned, "UNBEND_EXPLAIN": (vol, dx) + pinned}.get(name, (vol, dx))
     got = compare(book, name, host_args, direct_args)
     assert not (isinstance(got, str) and got.startswith("unbend:")), got
 
