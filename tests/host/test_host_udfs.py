@@ -14,7 +14,6 @@ newer ones (numbers beside the table below).
 from __future__ import annotations
 
 import datetime as dt
-import math
 import re
 import time
 from decimal import Decimal
