@@ -33,9 +33,11 @@ Nothing here needs Windows: the module imports ``xlwings.conversion``, which imp
 """
 from __future__ import annotations
 
+import array as _array
 import datetime as _dt
 import decimal
 import itertools
+import operator
 import re
 
 import numpy as np
@@ -170,14 +172,37 @@ def normalise(value):
     width = max(widths)
     if len(widths) > 1:  # not from a Range (those are rectangular): pad as a block
         rows = [tuple(r) + (None,) * (width - len(r)) for r in rows]
-    flat = list(itertools.chain.from_iterable(rows))
+    flat = list(map(_FIRST, rows)) if width == 1 else list(itertools.chain.from_iterable(rows))
+    numbers = _all_numbers(flat)
+    if numbers is not None:  # every cell a number: C-speed passes, no per-cell work
+        return numbers.reshape(len(rows), width)
     kinds = set(map(type, flat))
-    if kinds == {float}:  # every cell a number: one C-speed conversion, no per-cell work
-        return np.array(flat, dtype=float).reshape(len(rows), width)
     if kinds <= _PLAIN and "" not in flat:  # already in the vocabulary: the rows as they came
         return rows
     cells = list(map(_cell, flat))
     return [cells[i:i + width] for i in range(0, len(cells), width)]
+
+
+_FIRST = operator.itemgetter(0)
+_NUMBER_TYPES = (float, decimal.Decimal)
+
+
+def _all_numbers(flat: list):
+    """A new float array when every cell is a float, else None.
+
+    ``array('d')`` refuses blanks, text and dates in one C-speed pass; it accepts ints, bools and
+    Decimals, of which bools (0 or 1) and error codes (ints in their range) must not pass as
+    numbers, so only the cells holding those values get their type looked at (a currency cell
+    holding 0 or 1 is a number like any other).
+    """
+    try:
+        arr = np.frombuffer(_array.array("d", flat), dtype=float).copy()
+    except (TypeError, ValueError, OverflowError):
+        return None
+    suspects = np.flatnonzero((arr == 0.0) | (arr == 1.0) | ((arr >= COM_ERROR_BASE) & (arr <= _ERROR_LAST)))
+    if any(type(flat[i]) not in _NUMBER_TYPES for i in suspects.tolist()):
+        return None
+    return arr
 
 
 class HostProblem:
