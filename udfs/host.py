@@ -362,17 +362,20 @@ class _WriteStage:
             rows = [list(value)]
         else:
             rows = value
-        width = max(map(len, rows))
+        widths = set(map(len, rows))
+        flat = itertools.chain.from_iterable(rows)
+        if len(widths) == 1 and set(map(type, flat)) <= _COM_PLAIN and _finite(rows):
+            ctx.value = [r if type(r) is list else list(r) for r in rows]  # already what COM carries
+            return
+        width = max(widths)
         engine = ctx.engine
-        out = []
-        for r in rows:
-            r = list(r)
-            if not set(map(type, r)) <= _COM_PLAIN or any(v != v or v in (_INF, -_INF) for v in r if type(v) is float):
-                r = [_out_cell(v, engine) for v in r]
-            if len(r) < width:
-                r += [""] * (width - len(r))
-            out.append(r)
-        ctx.value = out
+        ctx.value = [[_out_cell(v, engine) for v in r] + [""] * (width - len(r)) for r in rows]
+
+
+def _finite(rows) -> bool:
+    """No NaN or infinity among the float cells (one vectorised test)."""
+    floats = [v for v in itertools.chain.from_iterable(rows) if type(v) is float]
+    return not floats or bool(np.isfinite(np.array(floats)).all())
 
 
 class HostResult(Accessor):
