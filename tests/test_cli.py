@@ -278,7 +278,7 @@ def test_demo_prints_powers_scan_verdict_and_predictions(demo):
     assert "extrapolation" in out and "licensed practice" in out
     k = lines.index("Files written:")
     listed = [ln.strip() for ln in lines[k + 1:] if ln.strip()]
-    assert len(listed) == 9
+    assert len(listed) == len(DEMO_BOOKS) + 1 + len(DEMO_PNGS)  # workbooks, the report, the plots
 
 
 def test_demo_summary_keeps_source_and_columns_on_separate_lines(demo):
