@@ -78,8 +78,11 @@ class Workbook:
         s.put_column("F2", [5.0, 20.0, 50.0, 200.0, 600.0])  # new x values
         s.put_column("G2", [float(v) ** 0.5 for v in river["sediment_t_per_day"][:39]])  # re-expressed values
 
-    def resolve(self, arg: str):
-        """(what the program passes, what a Python user passes) for one argument text."""
+    def resolve(self, arg: str, by_reference: bool = False):
+        """(what the program passes, what a Python user passes) for one argument text.
+
+        For an argument that takes a reference as a reference, a Python user passes the address.
+        """
         if arg == "":
             return excel.MISSING, None
         if arg.startswith('"'):
@@ -88,6 +91,8 @@ class Workbook:
         ref = self.tables[(m.group(1), m.group(2))] if m else arg
         if re.fullmatch(r"[A-Z]+\d+(:[A-Z]+\d+)?", ref):
             rng = self.sheet.ref(ref)
+            if by_reference:
+                return rng, ref
             value = rng.Value
             if isinstance(value, tuple):
                 flat = [c for row in value for c in row]
@@ -108,7 +113,10 @@ def test_the_readme_has_an_example_of_every_function():
 @pytest.mark.parametrize("formula, promise", EXAMPLES, ids=[f for f, _ in EXAMPLES])
 def test_readme_formula_through_xlwings(workbook, formula, promise):
     name, inner = re.fullmatch(r"=(UNBEND_[A-Z]+)\((.*)\)", formula).groups()
-    pairs = [workbook.resolve(a) for a in split_args(inner)]
+    HostReference = workbook.host.ns.module.host.HostReference
+    specs = getattr(workbook.host.ns.module, name).__xlfunc__["args"]
+    pairs = [workbook.resolve(a, specs[i]["options"].get("convert") is HostReference)
+             for i, a in enumerate(split_args(inner))]
     got = check_com(workbook.host.call(name, *[p[0] for p in pairs]))
     want = as_com(getattr(U, name)(*[p[1] for p in pairs]))
     assert got == want
