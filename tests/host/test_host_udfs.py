@@ -117,6 +117,18 @@ def book(cars_cols, trees_cols):
     return h
 
 
+SHAPED = ["UNBEND_POWER", "UNBEND_SUGGEST", "UNBEND_SCAN", "UNBEND_FIT", "UNBEND_PREDICT", "UNBEND_RESIDUALS",
+          "UNBEND_SPREAD", "UNBEND_SYMMETRY", "UNBEND_APPLY", "UNBEND_UNDO", "UNBEND_FORMULA", "UNBEND_EXPLAIN"]
+
+
+def test_every_function_is_driven_through_xlwings_somewhere():
+    """The shape tests below cover the functions listed in SHAPED; every function (those added later
+    included) has a README example, and test_readme_formulas runs each through xlwings."""
+    from .test_readme_formulas import EXAMPLES
+    with_example = {re.match(r"=(UNBEND_[A-Z]+)", f).group(1) for f, _ in EXAMPLES}
+    assert set(U.FUNCTIONS) <= set(SHAPED) | with_example
+
+
 def _call_args(name, Y, X, G, NEW, ONE):
     return {
         "UNBEND_POWER": (Y, X),
@@ -186,7 +198,7 @@ def test_an_addin_workbook_gets_activeworkbook_in_the_wrapper():
 
 # ----------------------------------------------------------------------------- shapes of input
 
-@pytest.mark.parametrize("name", NAMES)
+@pytest.mark.parametrize("name", SHAPED)
 @pytest.mark.parametrize("shape", ["table column", "with header", "whole column"])
 def test_one_column_references_give_the_direct_answer(book, name, shape, cars_cols):
     y, x = cars_cols

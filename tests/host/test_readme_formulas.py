@@ -88,6 +88,8 @@ class Workbook:
         if arg.startswith('"'):
             return arg.strip('"'), arg.strip('"')
         m = re.fullmatch(r"(\w+)\[(\w+)\]", arg)
+        if m and (m.group(1), m.group(2)) not in self.tables:
+            raise AssertionError(f"the README uses the table column {arg}; add it to this test's Workbook")
         ref = self.tables[(m.group(1), m.group(2))] if m else arg
         if re.fullmatch(r"[A-Z]+\d+(:[A-Z]+\d+)?", ref):
             rng = self.sheet.ref(ref)
