@@ -406,3 +406,26 @@ def test_two_whole_columns_of_ten_thousand_numbers_are_quick():
     took = time.perf_counter() - t0
     assert label_values(out)["rows used"] == 10_000
     assert took < 1.0, took
+
+
+def test_the_result_converter_through_xlwings_write():
+    """What HostResult hands COM, through xlwings' own conversion.write: a rectangle of plain cells;
+    dates through xlwings' own date conversion (pywin32 wants them with a time zone); NaN, infinity
+    and None as empty text; numpy numbers as Python numbers. (No function returns a date today; a
+    function added later might.)"""
+    h = Host()
+    HostResult = h.ns.module.host.HostResult
+    table = [["when", "value", "flag"],
+             [dt.datetime(2024, 3, 1, 12), np.float64(2.5), True],
+             [dt.date(2024, 3, 2), float("nan"), None],
+             [None, float("inf"), np.int64(7)]]
+    with h.active():
+        out = h.ns.conversion.write(table, None, {"convert": HostResult})
+        plain = h.ns.conversion.write([[1.0, "a"], [2.0, "b"]], None, {"convert": HostResult})
+        one = h.ns.conversion.write(3.5, None, {"convert": HostResult})
+    check_com(out)
+    assert out[1][0] == dt.datetime(2024, 3, 1, 12, tzinfo=dt.timezone.utc) and out[1][0].tzinfo is not None
+    assert out[2][0] == dt.datetime(2024, 3, 2, tzinfo=dt.timezone.utc)
+    assert out[1][1:] == [2.5, True] and type(out[1][1]) is float
+    assert out[2][1:] == ["", ""] and out[3] == ["", "", 7] and type(out[3][2]) is int
+    assert plain == [[1.0, "a"], [2.0, "b"]] and one == [[3.5]]
