@@ -44,6 +44,7 @@ def windows_mode(modules: dict):
     """
     names = list(modules)
     saved = {k: sys.modules.pop(k) for k in names if k in sys.modules}
+    parent = _parent_attribute()
     size = len(sys.modules)
     sys.modules.update(modules)
     try:
@@ -55,6 +56,22 @@ def windows_mode(modules: dict):
         for k in list(modules):
             sys.modules.pop(k, None)
         sys.modules.update(saved)
+        parent()
+
+
+def _parent_attribute():
+    """Importing unbend.udfs sets the attribute ``udfs`` on the (shared) engine package ``unbend``;
+    returns a function that puts the previous one back, so ``import unbend.udfs as U`` elsewhere keeps
+    giving the ordinary module."""
+    import unbend
+    had, old = hasattr(unbend, "udfs"), getattr(unbend, "udfs", None)
+
+    def restore():
+        if had:
+            unbend.udfs = old
+        elif hasattr(unbend, "udfs"):
+            del unbend.udfs
+    return restore
 
 
 @functools.lru_cache(maxsize=1)
@@ -83,6 +100,7 @@ def load() -> types.SimpleNamespace:
     saved = {k: v for k, v in sys.modules.items() if _owned(k)}
     for k in saved:
         del sys.modules[k]
+    parent = _parent_attribute()
     undo_ctypes = stubs.ctypes_patch()
     platform = sys.platform
     try:
@@ -106,6 +124,7 @@ def load() -> types.SimpleNamespace:
         for k in [k for k in sys.modules if _owned(k)]:
             del sys.modules[k]
         sys.modules.update(saved)
+        parent()
         undo_ctypes()
     return ns
 

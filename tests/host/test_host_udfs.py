@@ -15,6 +15,7 @@ from __future__ import annotations
 
 import datetime as dt
 import re
+import sys
 import time
 from decimal import Decimal
 from pathlib import Path
@@ -158,6 +159,11 @@ def compare(h, name, host_args, direct_args):
 
 def test_the_code_under_test_is_xlwings_own_windows_code():
     ns = load()
+    import unbend
+    from unbend.udfs import functions
+    # the ordinary modules stay what other tests imported: no Windows-mode module leaks out of the harness
+    assert unbend.udfs is sys.modules["unbend.udfs"] and unbend.udfs.functions is functions
+    assert ns.module is not unbend.udfs and not hasattr(functions.UNBEND_FIT, "__xlfunc__")
     site = Path(ns.xw.__file__).resolve().parent
     assert "site-packages" in str(site) and site.name == "xlwings"
     for mod in (ns.udfs, ns.com_server, ns.conversion, ns.xlwindows):
