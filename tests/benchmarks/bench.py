@@ -54,6 +54,19 @@ def timed(fn, repeats):
     return statistics.median(out)
 
 
+def timed_cpu(fn, repeats):
+    """Median wall time and median processor time of this process (the second is less disturbed by
+    other work on a shared machine; it is not the figure the targets are judged on)."""
+    wall, cpu = [], []
+    for _ in range(repeats):
+        gc.collect()
+        t0, c0 = time.perf_counter(), time.process_time()
+        fn()
+        wall.append(time.perf_counter() - t0)
+        cpu.append(time.process_time() - c0)
+    return statistics.median(wall), statistics.median(cpu)
+
+
 def data(n, seed=1):
     rng = np.random.default_rng(seed)
     x = rng.uniform(1.0, 100.0, n)
@@ -233,12 +246,13 @@ def bench_host(repeats):
     def whole():
         cache.clear()
         return h.call("UNBEND_FIT", A, B)
-    ours = timed(whole, repeats)
+    ours, cpu = timed_cpu(whole, repeats)
     ok = whole() == as_com(U.UNBEND_FIT(ylist, xlist))
     calls0 = h.app.calls
     whole()
     row("UNBEND_FIT(A:A, B:B), 10^4 numbers, first calculation, through xlwings", ours, old, "\u2264 100 ms", ok,
-        f"reference: xlwings' default reading of the two columns alone; {h.app.calls - calls0} round trips")
+        f"cpu {cpu * 1000:.1f} ms; reference: xlwings' default reading of the two columns alone; "
+        f"{h.app.calls - calls0} round trips")
 
     for label, (Y, X) in (("table columns", (TY, TX)), ("whole columns", (A, B))):
         h.call("UNBEND_PREDICT", Y, X, s.ref("F2"), 0.0, 0.0, "median")
@@ -246,24 +260,28 @@ def bench_host(repeats):
         def cells():
             for i in range(1000):
                 h.call("UNBEND_PREDICT", Y, X, s.ref(f"F{i + 2}"), 0.0, 0.0, "median", caller=h.out.ref(f"B{i + 1}"))
-        ours = timed(cells, max(1, repeats // 2)) / 1000
+        ours, cpu = timed_cpu(cells, max(1, repeats // 2))
+        ours, cpu = ours / 1000, cpu / 1000
         calls0 = h.app.calls
         got = h.call("UNBEND_PREDICT", Y, X, s.ref("F40"), 0.0, 0.0, "median")
         per = h.app.calls - calls0
         ok = got == U.UNBEND_PREDICT(ylist, xlist, float(new[38]), 0.0, 0.0, "median")
         row(f"1,000 single-value UNBEND_PREDICT cells ({label}), per cell, through xlwings", ours, None,
-            "\u2264 5 ms", ok, f"{per} round trips per cell")
+            "\u2264 5 ms", ok, f"cpu {cpu * 1000:.2f} ms; {per} round trips per cell")
 
     F = s.ref("F2:F1001")
 
-    def spill():
-        cache.clear()
+    def spill(fresh=True):
+        if fresh:
+            cache.clear()
         return h.call("UNBEND_PREDICT", TY, TX, F, 0.0, 0.0)
-    ours = timed(spill, repeats)
+    ours, cpu = timed_cpu(spill, repeats)
     out = spill()
     ok = out == as_com(U.UNBEND_PREDICT(y.tolist(), x.tolist(), new.tolist(), 0.0, 0.0)) and len(out) == 1001
     row("one UNBEND_PREDICT spilling 1,000 new x, first calculation, through xlwings", ours, None, "\u2264 30 ms", ok,
-        "fit included; result handed back for COM")
+        f"cpu {cpu * 1000:.1f} ms; the fit included; result handed back for COM")
+    ours, cpu = timed_cpu(lambda: spill(False), repeats)
+    row("the same, recalculated (the fit already cached)", ours, None, "\u2264 30 ms", ok, f"cpu {cpu * 1000:.1f} ms")
 
 
 def bench_memory():
