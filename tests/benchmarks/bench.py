@@ -257,10 +257,10 @@ def bench_host(repeats):
     for label, (Y, X) in (("table columns", (TY, TX)), ("whole columns", (A, B))):
         h.call("UNBEND_PREDICT", Y, X, s.ref("F2"), 0.0, 0.0, "median")
 
-        def cells():
+        def thousand():
             for i in range(1000):
                 h.call("UNBEND_PREDICT", Y, X, s.ref(f"F{i + 2}"), 0.0, 0.0, "median", caller=h.out.ref(f"B{i + 1}"))
-        ours, cpu = timed_cpu(cells, max(1, repeats // 2))
+        ours, cpu = timed_cpu(thousand, max(1, repeats // 2))
         ours, cpu = ours / 1000, cpu / 1000
         calls0 = h.app.calls
         got = h.call("UNBEND_PREDICT", Y, X, s.ref("F40"), 0.0, 0.0, "median")
