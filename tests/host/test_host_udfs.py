@@ -435,3 +435,18 @@ def test_the_result_converter_through_xlwings_write():
     assert out[1][1:] == [2.5, True] and type(out[1][1]) is float
     assert out[2][1:] == ["", ""] and out[3] == ["", "", 7] and type(out[3][2]) is int
     assert plain == [[1.0, "a"], [2.0, "b"]] and one == [[3.5]]
+
+
+def test_a_reference_the_program_cannot_hand_over_gives_a_message(book):
+    """A COM failure while reading a reference (the program busy, out of memory ...) names the argument."""
+    s = book.sheet
+    bad = s.ref("A2:A51")
+
+    class Refusing(type(bad)):
+        @property
+        def Value(self):
+            raise excel.com_error(-2147418111, "Call was rejected by callee.", None, None)
+    bad.__class__ = Refusing
+    got = book.call("UNBEND_FIT", s.ref("B2:B51"), bad)
+    assert got.startswith("unbend: x: the spreadsheet program could not hand the cells over (")
+    assert "\n" not in got
