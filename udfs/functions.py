@@ -29,7 +29,7 @@ from unbend.predicting import prediction_columns
 
 from . import cells
 from .formula import model_formula
-from .host import HostCells, HostProblem, HostReference, HostResult
+from .host import HostCells, HostProblem, HostReference, HostResult, SameCells
 from .wording import SCAN_HEADERS, prediction_headers
 
 CATEGORY = "unbend"
@@ -38,6 +38,8 @@ CATEGORY = "unbend"
 FUNCTIONS = {}
 
 _cache = cells.ResultCache(maxsize=128)
+#: Readings of y and x that many cells share (a thousand predictions over the same two columns).
+_readings = SameCells()
 
 _Y = "Range of y values (the response), one column; text, blanks and errors are skipped and counted."
 _X = "Range of x values (the predictor): one column, or a block with one column per predictor."
@@ -97,7 +99,12 @@ def cell_function(**arg_docs):
 # ----------------------------------------------------------------------------- inputs
 
 def _yx(y, x):
-    """y as a vector and x as a block, brought to the same number of rows."""
+    """y as a vector and x as a block, brought to the same number of rows (new arrays on every call)."""
+    yv, X = _readings.get_or_read((y, x), lambda: _read_yx(y, x))
+    return yv.copy(), X.copy()
+
+
+def _read_yx(y, x):
     yv = cells.to_numbers(y, "y")
     X = cells.to_block(x, "x")
     if yv.size == 0:

@@ -39,6 +39,7 @@ import decimal
 import itertools
 import operator
 import re
+import threading
 
 import numpy as np
 from xlwings.conversion import Accessor, Pipeline
@@ -55,6 +56,7 @@ __all__ = [
     "HostReference",
     "HostResult",
     "TRIM_ABOVE",
+    "SameCells",
 ]
 
 #: A cell error arrives as this COM error code plus Excel's error number (0x800A0000 as a signed
@@ -157,11 +159,10 @@ def normalise(value):
 
     Returns
     -------
-    scalar, numpy.ndarray or sequence of rows
+    scalar, numpy.ndarray or tuple of rows
         One value for one cell. For a block: a new 2-D float array when every cell is a number
-        (the fast path), otherwise a sequence of rows (lists, or the tuples as they came when they
-        need no change) of ``None``/``float``/``str``/``bool``/``datetime`` with error values as
-        their text. A flat sequence is one row (as xlwings reads it).
+        (the fast path), otherwise a tuple of rows (tuples) of ``None``/``float``/``str``/``bool``/
+        ``datetime`` with error values as their text. A flat sequence is one row (as xlwings reads it).
     """
     if not isinstance(value, (tuple, list)):
         return _cell(value)
@@ -178,9 +179,9 @@ def normalise(value):
         return numbers.reshape(len(rows), width)
     kinds = set(map(type, flat))
     if kinds <= _PLAIN and "" not in flat:  # already in the vocabulary: the rows as they came
-        return rows
+        return rows if type(rows) is tuple else tuple(map(tuple, rows))
     cells = list(map(_cell, flat))
-    return [cells[i:i + width] for i in range(0, len(cells), width)]
+    return tuple(zip(*[iter(cells)] * width))  # rows of `width` cells, as tuples
 
 
 _FIRST = operator.itemgetter(0)
@@ -203,6 +204,80 @@ def _all_numbers(flat: list):
     if any(type(flat[i]) not in _NUMBER_TYPES for i in suspects.tolist()):
         return None
     return arr
+
+
+class SameCells:
+    """Readings of cells seen a moment ago, found again by the cells themselves.
+
+    Every formula reads its ranges each time it recalculates, so a thousand cells over the same two
+    columns read the same values a thousand times. This keeps the last few readings, keyed by the
+    cells as :func:`normalise` hands them over, and gives one back only when the new cells equal the
+    old ones value for value and type for type (``True`` is not ``1.0``; an array must match bit for
+    bit). Anything it cannot key exactly (lists from a Python caller, unhashable cells) is read anew.
+
+    Parameters
+    ----------
+    size : int
+        Readings kept (least recently used dropped first).
+    max_cells : int
+        Larger arguments are not kept.
+    """
+
+    def __init__(self, size: int = 8, max_cells: int = 300_000):
+        self.size, self.max_cells = size, max_cells
+        self._entries = []  # [(key, parts' exact forms, reading)], most recent last
+        self._lock = threading.Lock()
+        self.hits = self.misses = 0
+
+    def _exact(self, part):
+        """(hashable key, exact form) of one argument, or None when it cannot be keyed exactly."""
+        if part is None or type(part) in _SCALARS:
+            return (type(part), part), (type(part), part)
+        if isinstance(part, np.ndarray):
+            if part.dtype.kind not in "fiub" or part.size > self.max_cells:
+                return None
+            raw = part.tobytes()
+            return ("a", part.dtype.str, part.shape, hash(raw)), raw
+        if type(part) is tuple and part and type(part[0]) is tuple:
+            if len(part) * len(part[0]) > self.max_cells:
+                return None
+            try:
+                h = hash(part)
+            except TypeError:
+                return None
+            return ("r", len(part), h), (part, tuple(map(type, itertools.chain.from_iterable(part))))
+        return None
+
+    def get_or_read(self, parts: tuple, read):
+        """``read()``'s result for these arguments, from a reading of equal cells when there is one."""
+        exact = [self._exact(p) for p in parts]
+        if any(e is None for e in exact):
+            return read()
+        key = tuple(e[0] for e in exact)
+        forms = [e[1] for e in exact]
+        with self._lock:
+            for i, (k, f, reading) in enumerate(self._entries):
+                if k == key and all(_same(a, b) for a, b in zip(f, forms)):
+                    self._entries.append(self._entries.pop(i))
+                    self.hits += 1
+                    return reading
+            self.misses += 1
+        reading = read()
+        with self._lock:
+            self._entries.append((key, forms, reading))
+            del self._entries[:-self.size]
+        return reading
+
+
+_SCALARS = frozenset({float, str, bool, _dt.datetime})
+
+
+def _same(a, b) -> bool:
+    if type(a) is bytes:
+        return a == b
+    if type(a) is tuple and len(a) == 2 and type(a[1]) is tuple:  # (rows, types)
+        return a[1] == b[1] and a[0] == b[0]
+    return a == b
 
 
 class HostProblem:

@@ -450,3 +450,49 @@ def test_a_reference_the_program_cannot_hand_over_gives_a_message(book):
     got = book.call("UNBEND_FIT", s.ref("B2:B51"), bad)
     assert got.startswith("unbend: x: the spreadsheet program could not hand the cells over (")
     assert "\n" not in got
+
+
+def test_many_cells_over_the_same_columns_read_them_once(book, cars_cols):
+    """A reading is reused only for cells equal value for value and type for type."""
+    y, x = cars_cols
+    s = book.sheet
+    memo = book.ns.module.functions._readings
+    Y, X = s.ref("A1:A51"), s.ref("B1:B51")  # with headers: the mixed path
+    book.call("UNBEND_PREDICT", Y, X, 10.0, 0.0, 0.0, "median")
+    hits = memo.hits
+    for v in (12.0, 14.0, 16.0):
+        compare(book, "UNBEND_PREDICT", (Y, X, v, 0.0, 0.0, "median"), (["dist"] + y, ["speed"] + x, v, 0.0, 0.0, "median"))
+    assert memo.hits == hits + 3
+    # the same values with one 1.0 turned into TRUE: not the same cells, read anew (TRUE is skipped)
+    col = ["dist"] + y
+    col[1] = True
+    s.put_column("A1", col)
+    got = compare(book, "UNBEND_FIT", (Y, X, 0.0, 0.0), (col, ["speed"] + x, 0.0, 0.0))
+    assert label_values(got)["rows skipped"] == 2
+    misses = memo.misses
+    ones = ["dist"] + y
+    ones[1] = 1.0
+    s.put_column("A1", ones)  # equal to TRUE under ==, but a number
+    got = compare(book, "UNBEND_FIT", (Y, X, 0.0, 0.0), (ones, ["speed"] + x, 0.0, 0.0))
+    assert label_values(got)["rows skipped"] == 1 and memo.misses == misses + 1
+
+
+def test_same_cells_keys_exactly():
+    SameCells = load().module.host.SameCells
+    memo = SameCells(size=2)
+    reads = []
+
+    def read(tag):
+        reads.append(tag)
+        return tag
+    a = np.array([[1.0], [2.0]])
+    assert memo.get_or_read((a, None), lambda: read("a")) == "a"
+    assert memo.get_or_read((a.copy(), None), lambda: read("a2")) == "a"  # equal bits: reused
+    assert memo.get_or_read((np.array([[1.0], [-0.0 + 2.0]]), None), lambda: read("b")) == "a"
+    assert memo.get_or_read((np.array([[-0.0], [2.0]]), None), lambda: read("c")) == "c"  # other bits
+    rows = ((1.0,), ("x",))
+    assert memo.get_or_read((rows, 0.5), lambda: read("r")) == "r"
+    assert memo.get_or_read((((True,), ("x",)), 0.5), lambda: read("t")) == "t"  # True == 1.0, yet not the same
+    assert memo.get_or_read(([[1.0], ["x"]], 0.5), lambda: read("list")) == "list"  # lists: never kept
+    assert memo.get_or_read(([[1.0], ["x"]], 0.5), lambda: read("list2")) == "list2"
+    assert reads == ["a", "c", "r", "t", "list", "list2"]
