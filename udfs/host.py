@@ -57,6 +57,7 @@ __all__ = [
     "HostResult",
     "TRIM_ABOVE",
     "SameCells",
+    "CellRows",
 ]
 
 #: A cell error arrives as this COM error code plus Excel's error number (0x800A0000 as a signed
@@ -178,10 +179,19 @@ def normalise(value):
     if numbers is not None:  # every cell a number: C-speed passes, no per-cell work
         return numbers.reshape(len(rows), width)
     kinds = set(map(type, flat))
-    if kinds <= _PLAIN and "" not in flat:  # already in the vocabulary: the rows as they came
-        return rows if type(rows) is tuple else tuple(map(tuple, rows))
+    if kinds <= _PLAIN and not (str in kinds and "" in set(flat)):  # already in the vocabulary
+        return CellRows(rows if type(rows) is tuple else map(tuple, rows), kinds)
     cells = list(map(_cell, flat))
-    return tuple(zip(*[iter(cells)] * width))  # rows of `width` cells, as tuples
+    return CellRows(zip(*[iter(cells)] * width), set(map(type, cells)))  # rows of `width` cells
+
+
+class CellRows(tuple):
+    """A block in the cell vocabulary: a tuple of rows (tuples), with the set of cell types in it."""
+
+    def __new__(cls, rows, kinds):
+        self = super().__new__(cls, rows)
+        self.kinds = frozenset(kinds)
+        return self
 
 
 _FIRST = operator.itemgetter(0)
@@ -238,14 +248,14 @@ class SameCells:
                 return None
             raw = part.tobytes()
             return ("a", part.dtype.str, part.shape, hash(raw)), raw
-        if type(part) is tuple and part and type(part[0]) is tuple:
+        if type(part) is CellRows and part:
             if len(part) * len(part[0]) > self.max_cells:
                 return None
-            try:
-                h = hash(part)
-            except TypeError:
-                return None
-            return ("r", len(part), h), (part, tuple(map(type, itertools.chain.from_iterable(part))))
+            key = ("r", len(part), part[0], part[-1])
+            # == is type-strict for floats, text, blanks and dates (none equals another kind); only
+            # TRUE/FALSE equal 1.0/0.0, so where they occur the types are compared cell by cell too
+            types = tuple(map(type, itertools.chain.from_iterable(part))) if bool in part.kinds else None
+            return key, (part, types)
         return None
 
     def get_or_read(self, parts: tuple, read):
@@ -275,7 +285,7 @@ _SCALARS = frozenset({float, str, bool, _dt.datetime})
 def _same(a, b) -> bool:
     if type(a) is bytes:
         return a == b
-    if type(a) is tuple and len(a) == 2 and type(a[1]) is tuple:  # (rows, types)
+    if type(a) is tuple and len(a) == 2 and type(a[0]) is CellRows:  # (rows, types or None)
         return a[1] == b[1] and a[0] == b[0]
     return a == b
 

@@ -478,7 +478,7 @@ def test_many_cells_over_the_same_columns_read_them_once(book, cars_cols):
 
 
 def test_same_cells_keys_exactly():
-    SameCells = load().module.host.SameCells
+    SameCells, CellRows = load().module.host.SameCells, load().module.host.CellRows
     memo = SameCells(size=2)
     reads = []
 
@@ -490,9 +490,12 @@ def test_same_cells_keys_exactly():
     assert memo.get_or_read((a.copy(), None), lambda: read("a2")) == "a"  # equal bits: reused
     assert memo.get_or_read((np.array([[1.0], [-0.0 + 2.0]]), None), lambda: read("b")) == "a"
     assert memo.get_or_read((np.array([[-0.0], [2.0]]), None), lambda: read("c")) == "c"  # other bits
-    rows = ((1.0,), ("x",))
+    rows = CellRows(((1.0,), ("x",)), {float, str})
     assert memo.get_or_read((rows, 0.5), lambda: read("r")) == "r"
-    assert memo.get_or_read((((True,), ("x",)), 0.5), lambda: read("t")) == "t"  # True == 1.0, yet not the same
+    assert memo.get_or_read((CellRows(((1.0,), ("x",)), {float, str}), 0.5), lambda: read("r2")) == "r"
+    bools = CellRows(((True,), ("x",)), {bool, str})
+    assert memo.get_or_read((bools, 0.5), lambda: read("t")) == "t"  # True == 1.0, yet not the same
+    assert memo.get_or_read((rows, 0.5), lambda: read("r3")) == "r"
     assert memo.get_or_read(([[1.0], ["x"]], 0.5), lambda: read("list")) == "list"  # lists: never kept
     assert memo.get_or_read(([[1.0], ["x"]], 0.5), lambda: read("list2")) == "list2"
     assert reads == ["a", "c", "r", "t", "list", "list2"]
