@@ -33,7 +33,6 @@ Nothing here needs Windows: the module imports ``xlwings.conversion``, which imp
 """
 from __future__ import annotations
 
-import array as _array
 import datetime as _dt
 import decimal
 import itertools
@@ -175,14 +174,71 @@ def normalise(value):
     if len(widths) > 1:  # not from a Range (those are rectangular): pad as a block
         rows = [tuple(r) + (None,) * (width - len(r)) for r in rows]
     flat = list(map(_FIRST, rows)) if width == 1 else list(itertools.chain.from_iterable(rows))
-    numbers = _all_numbers(flat)
-    if numbers is not None:  # every cell a number: C-speed passes, no per-cell work
-        return numbers.reshape(len(rows), width)
     kinds = set(map(type, flat))
+    seen = _recent.find(flat, kinds, width)
+    if seen is not None:  # the same cells as a moment ago (another cell reading the same range)
+        return seen
+    block = _normalise_block(rows, flat, kinds, width)
+    _recent.keep(flat, kinds, width, block)
+    return block
+
+
+def _normalise_block(rows, flat, kinds, width):
+    if kinds == {float}:  # every cell a number: one C-speed conversion, no per-cell work
+        arr = np.array(flat, dtype=float).reshape(len(rows), width)
+        arr.flags.writeable = False  # it may be handed out again (see _RecentBlocks)
+        return arr
+    if kinds <= {float, decimal.Decimal}:  # currency cells among the numbers
+        arr = np.array([float(v) for v in flat], dtype=float).reshape(len(rows), width)
+        arr.flags.writeable = False
+        return arr
     if kinds <= _PLAIN and not (str in kinds and "" in set(flat)):  # already in the vocabulary
         return CellRows(rows if type(rows) is tuple else map(tuple, rows), kinds)
     cells = list(map(_cell, flat))
     return CellRows(zip(*[iter(cells)] * width), set(map(type, cells)))  # rows of `width` cells
+
+
+class _RecentBlocks:
+    """The last few blocks the host handed over, and what :func:`normalise` made of them.
+
+    Each formula reads its ranges when it recalculates; a thousand cells over the same columns hand
+    over a thousand equal blocks. A block equal to a recent one, value for value and type for type,
+    gets the same (immutable) result back. ``==`` alone is not enough: TRUE equals 1.0, and an
+    error code equals the float of the same value, so where bools or ints occur the types are
+    compared cell by cell too. (Decimal and float, or the COM date type and a plain date, normalise
+    alike, so their equality is enough.)
+    """
+
+    def __init__(self, size: int = 8, min_cells: int = 64):
+        self.size, self.min_cells = size, min_cells
+        self._entries = []  # (key, flat, kinds, types or None, result), most recent last
+        self._lock = threading.Lock()
+
+    @staticmethod
+    def _types(flat, kinds):
+        return tuple(map(type, flat)) if (bool in kinds or int in kinds) else None
+
+    def find(self, flat, kinds, width):
+        if len(flat) < self.min_cells:
+            return None
+        key = (len(flat), width, flat[0], flat[-1])
+        with self._lock:
+            for i, (k, f, kd, types, result) in enumerate(self._entries):
+                if k == key and kd == kinds and f == flat and types == self._types(flat, kinds):
+                    self._entries.append(self._entries.pop(i))
+                    return result
+        return None
+
+    def keep(self, flat, kinds, width, result):
+        if len(flat) < self.min_cells:
+            return
+        entry = ((len(flat), width, flat[0], flat[-1]), flat, frozenset(kinds), self._types(flat, kinds), result)
+        with self._lock:
+            self._entries.append(entry)
+            del self._entries[:-self.size]
+
+
+_recent = _RecentBlocks()
 
 
 class CellRows(tuple):
@@ -195,25 +251,6 @@ class CellRows(tuple):
 
 
 _FIRST = operator.itemgetter(0)
-_NUMBER_TYPES = (float, decimal.Decimal)
-
-
-def _all_numbers(flat: list):
-    """A new float array when every cell is a float, else None.
-
-    ``array('d')`` refuses blanks, text and dates in one C-speed pass; it accepts ints, bools and
-    Decimals, of which bools (0 or 1) and error codes (ints in their range) must not pass as
-    numbers, so only the cells holding those values get their type looked at (a currency cell
-    holding 0 or 1 is a number like any other).
-    """
-    try:
-        arr = np.frombuffer(_array.array("d", flat), dtype=float).copy()
-    except (TypeError, ValueError, OverflowError):
-        return None
-    suspects = np.flatnonzero((arr == 0.0) | (arr == 1.0) | ((arr >= COM_ERROR_BASE) & (arr <= _ERROR_LAST)))
-    if any(type(flat[i]) not in _NUMBER_TYPES for i in suspects.tolist()):
-        return None
-    return arr
 
 
 class SameCells:
