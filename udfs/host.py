@@ -272,7 +272,7 @@ class SameCells:
 
     def __init__(self, size: int = 8, max_cells: int = 300_000):
         self.size, self.max_cells = size, max_cells
-        self._entries = []  # [(key, parts' exact forms, reading)], most recent last
+        self._entries = []  # [(key, parts' exact forms, reading, the parts)], most recent last
         self._lock = threading.Lock()
         self.hits = self.misses = 0
 
@@ -297,13 +297,20 @@ class SameCells:
 
     def get_or_read(self, parts: tuple, read):
         """``read()``'s result for these arguments, from a reading of equal cells when there is one."""
+        frozen = all(map(_immutable, parts))
+        with self._lock:  # the very same unchangeable objects (normalise hands out one result for equal blocks)
+            for i, entry in enumerate(self._entries if frozen else ()):
+                if len(entry[3]) == len(parts) and all(a is b for a, b in zip(entry[3], parts)):
+                    self._entries.append(self._entries.pop(i))
+                    self.hits += 1
+                    return entry[2]
         exact = [self._exact(p) for p in parts]
         if any(e is None for e in exact):
             return read()
         key = tuple(e[0] for e in exact)
         forms = [e[1] for e in exact]
         with self._lock:
-            for i, (k, f, reading) in enumerate(self._entries):
+            for i, (k, f, reading, _) in enumerate(self._entries):
                 if k == key and all(_same(a, b) for a, b in zip(f, forms)):
                     self._entries.append(self._entries.pop(i))
                     self.hits += 1
@@ -311,12 +318,18 @@ class SameCells:
             self.misses += 1
         reading = read()
         with self._lock:
-            self._entries.append((key, forms, reading))
+            self._entries.append((key, forms, reading, tuple(parts)))
             del self._entries[:-self.size]
         return reading
 
 
 _SCALARS = frozenset({float, str, bool, _dt.datetime})
+
+
+def _immutable(part) -> bool:
+    """True for what cannot change after it was seen: None, a scalar, a CellRows, a read-only array."""
+    return (part is None or type(part) in _SCALARS or type(part) is CellRows
+            or (isinstance(part, np.ndarray) and not part.flags.writeable))
 
 
 def _same(a, b) -> bool:

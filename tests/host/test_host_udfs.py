@@ -499,3 +499,18 @@ def test_same_cells_keys_exactly():
     assert memo.get_or_read(([[1.0], ["x"]], 0.5), lambda: read("list")) == "list"  # lists: never kept
     assert memo.get_or_read(([[1.0], ["x"]], 0.5), lambda: read("list2")) == "list2"
     assert reads == ["a", "c", "r", "t", "list", "list2"]
+
+
+def test_a_python_callers_list_changed_between_calls_is_read_again(cars_cols):
+    """The reading memo never trusts an object that can change: a list passed twice, changed between."""
+    y, x = cars_cols
+    fns = load().module.functions
+    ys = list(y)
+    first = fns.UNBEND_FIT(ys, x, 0.0, 0.0)
+    ys[0] = "n/a"
+    second = fns.UNBEND_FIT(ys, x, 0.0, 0.0)
+    assert label_values(first)["rows skipped"] == 0 and label_values(second)["rows skipped"] == 1
+    arr = np.array(y)
+    fns.UNBEND_FIT(arr, x, 0.0, 0.0)
+    arr[0] = np.nan  # a writeable array changed in place
+    assert label_values(fns.UNBEND_FIT(arr, x, 0.0, 0.0))["rows skipped"] == 1
