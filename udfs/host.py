@@ -14,7 +14,10 @@ This module turns those into the vocabulary the rest of ``unbend.udfs`` reads (:
 ``None`` for a blank (empty text included, as xlwings does), ``float``, ``str``, ``bool``, a naive
 ``datetime``, and every error value as its text (``"#N/A"``, ``"#SPILL!"`` ...), so that no error
 code can be read as a number and every one is skipped and counted as an error value. A block made
-only of numbers comes back as a float array (the fast path); anything else as a list of rows.
+only of numbers comes back as a read-only float array (the fast path); anything else as a
+:class:`CellRows`, a tuple of rows. A block equal to one handed over a moment before (a thousand
+cells reading the same columns) gets the same result back, and :class:`SameCells` lets the cell
+functions reuse the reading made of it.
 
 It also holds the xlwings converters the cell functions use (see ``functions.cell_function``):
 
@@ -101,6 +104,7 @@ UNNAMED_ERROR = "#N/A"
 TRIM_ABOVE = 65_536
 SHEET_ROWS = 1_048_576  # rows and columns of a worksheet (common practice: the sheet limits since 2007)
 SHEET_COLUMNS = 16_384
+
 
 def is_error_code(v) -> bool:
     """True for an ``int`` (not a bool) in the range COM uses for cell errors."""
