@@ -159,7 +159,7 @@ def _addin_sheet(wb, sc, yref, xref, new_first, new_last):
     r = 4
     for label, formula in rows:
         put(ws, r, 1, label).font = HEADER_FONT
-        put(ws, r, 2, formula, formula=True)
+        put_spilling(ws, f"B{r}", formula)  # one value, but stored the same way: no implicit-intersection @
         put(ws, r, 3, formula).font = NOTE_FONT
         r += 1
     put(ws, 10, 1, "Predictions at the new x values of the model sheet (one row per new x):").font = HEADER_FONT
