@@ -2,9 +2,9 @@
 
 What is checked against what
 ----------------------------
-* Spilling, read from the saved XML: every cell whose formula returns a table (UNBEND_SCAN,
-  UNBEND_FIT, UNBEND_PREDICT over a range ...) is a one-cell array formula with the dynamic-array
-  cell-metadata mark, and the workbook has the metadata part, its content type and its
+* Spilling, read from the saved XML: every cell that calls an unbend function (the tables
+  UNBEND_SCAN, UNBEND_FIT, UNBEND_PREDICT over a range ... and the single values alike) is a one-cell
+  array formula with the dynamic-array cell-metadata mark, and the workbook has the metadata part, its content type and its
   relationship. The expected form is what XlsxWriter (outside library) writes for
   ``write_dynamic_array_formula``: the same cell attributes and the same metadata part.
 * Macro-enabled copies (.xlsm): the VBA project is byte for byte the one in the installed xlwings'
