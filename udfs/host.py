@@ -213,8 +213,8 @@ class _RecentBlocks:
     alike, so their equality is enough.)
     """
 
-    def __init__(self, size: int = 8, min_cells: int = 64):
-        self.size, self.min_cells = size, min_cells
+    def __init__(self, size: int = 8, min_cells: int = 64, max_cells: int = 200_000):
+        self.size, self.min_cells, self.max_cells = size, min_cells, max_cells
         self._entries = []  # (key, flat, kinds, types or None, result), most recent last
         self._lock = threading.Lock()
 
@@ -222,8 +222,11 @@ class _RecentBlocks:
     def _types(flat, kinds):
         return tuple(map(type, flat)) if (bool in kinds or int in kinds) else None
 
+    def _kept(self, flat) -> bool:
+        return self.min_cells <= len(flat) <= self.max_cells  # small blocks are cheap; huge ones cost memory
+
     def find(self, flat, kinds, width):
-        if len(flat) < self.min_cells:
+        if not self._kept(flat):
             return None
         key = (len(flat), width, flat[0], flat[-1])
         with self._lock:
@@ -234,7 +237,7 @@ class _RecentBlocks:
         return None
 
     def keep(self, flat, kinds, width, result):
-        if len(flat) < self.min_cells:
+        if not self._kept(flat):
             return
         entry = ((len(flat), width, flat[0], flat[-1]), flat, frozenset(kinds), self._types(flat, kinds), result)
         with self._lock:
@@ -274,7 +277,7 @@ class SameCells:
         Larger arguments are not kept.
     """
 
-    def __init__(self, size: int = 8, max_cells: int = 300_000):
+    def __init__(self, size: int = 8, max_cells: int = 200_000):
         self.size, self.max_cells = size, max_cells
         self._entries = []  # [(key, parts' exact forms, reading, the parts)], most recent last
         self._lock = threading.Lock()
