@@ -240,19 +240,21 @@ def _prediction_columns(fit, new_x, level):
     mean = smeared_mean(fit, eta)
     trust = mean_cautions(fit, eta, median, mean)
     notes = []
-    for i in range(m):
-        if not np.isfinite(X[i]).all():
+    # flags worked out for all rows at once; the loop below only reads plain booleans
+    x_ok, med_ok, hi_ok = np.isfinite(X).all(axis=1).tolist(), np.isfinite(median).tolist(), np.isfinite(hi).tolist()
+    for i, (row_ok, out) in enumerate(zip(ok.tolist(), outside.tolist())):
+        if not x_ok[i]:
             notes.append("x is not a number")
             continue
-        if not ok[i]:
+        if not row_ok:
             notes.append("x cannot be re-expressed at this power")
             continue
         parts = []
-        if outside[i]:
+        if out:
             parts.append("outside the observed x range: extrapolation")
-        if not np.isfinite(median[i]):
+        if not med_ok[i]:
             parts.append("no finite value: the line is past the end this y power can reach")
-        elif not np.isfinite(hi[i]):
+        elif not hi_ok[i]:
             parts.append("the interval has no upper end at this y power")
         if trust[i]:
             parts.append(trust[i])

@@ -4,10 +4,9 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 
-from scipy import stats
 
 from ._validation import UnbendError, as_matrix, as_vector, check_number, check_power, check_varies, usable_rows
-from .diagnostics import ALPHA, Check, make_check, normality_test, pattern_bins, pattern_test
+from .diagnostics import ALPHA, Check, chi2_sf, make_check, normality_test, pattern_bins, pattern_test, t_two_sided
 from .express import LADDER, Reexpression, propose_start, rung_label
 from .wording import no_likelihood_words, scan_words
 from .power import _rungs
@@ -218,7 +217,7 @@ def _pair_checks(out, rec, n, ty, yu, yt, resid, rss, tss, tss_orig, jac, q2, q3
                 tv, pv = (np.inf if c3 else 0.0), (0.0 if c3 else 1.0)
             else:
                 tv = c3 / np.sqrt(rss3 / df3)
-                pv = float(2 * stats.t.sf(abs(tv), df3))
+                pv = t_two_sided(tv, df3)
             curv = make_check("Tukey one-degree-of-freedom", tv, pv, ALPHA, np.sign(c3))
         pat = pattern_test(resid, bins)
         # Breusch-Pagan, Koenker's form, one x column
@@ -235,7 +234,7 @@ def _pair_checks(out, rec, n, ty, yu, yt, resid, rss, tss, tss_orig, jac, q2, q3
                 spr = Check("Breusch-Pagan (Koenker)", 0.0, 1.0, True, 0.0)
             else:
                 lm = n * np.float64(dot(q2, d)) ** 2 / dd
-                pv = float(stats.chi2.sf(lm, 1))
+                pv = chi2_sf(lm, 1)
                 ar = np.abs(resid)
                 cc = dot(ar - ar.mean(), q2)  # fitted = mean + b q2: its sign follows b
                 spr = make_check("Breusch-Pagan (Koenker)", lm, pv, ALPHA, np.sign(cc * dot(q2, yt)))

@@ -226,7 +226,8 @@ def demo(tmp_path_factory):
     return dict(base=base, code=code, out=out, err=err, first=first, proc=proc, seconds=time.monotonic() - t0)
 
 
-DEMO_BOOKS = ["river_sediment.xlsx", "tool_life.xlsx", "fleet_fuel.xlsx", "batch_defects.xlsx", "assay_batches.xlsx"]
+DEMO_BOOKS = [f"{n}.{ext}" for ext in ("xlsx", "xlsm")  # each with its macro-enabled copy
+              for n in ("river_sediment", "tool_life", "fleet_fuel", "batch_defects", "assay_batches")]
 DEMO_PNGS = ["before_after.png", "residuals.png", "scan.png"]
 
 
@@ -281,7 +282,7 @@ def test_demo_prints_powers_scan_verdict_and_predictions(demo):
     assert "extrapolation" in out and "licensed practice" in out
     k = lines.index("Files written:")
     listed = [ln.strip() for ln in lines[k + 1:] if ln.strip()]
-    assert len(listed) == 9
+    assert len(listed) == len(DEMO_BOOKS) + 1 + len(DEMO_PNGS)  # workbooks, the report, the plots
 
 
 def test_demo_summary_keeps_source_and_columns_on_separate_lines(demo):

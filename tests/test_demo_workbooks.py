@@ -1,4 +1,4 @@
-"""The committed demo workbooks (workbooks_demo/*.xlsx) and what LibreOffice computes from them.
+"""The committed demo workbooks (workbooks_demo/*.xlsx, *.xlsm) and what LibreOffice computes from them.
 
 What is checked against what
 ----------------------------
@@ -6,6 +6,12 @@ What is checked against what
   them with ``unbend.udfs.demo.build_demo_workbooks`` must give the same cells
   (formulas as text, numbers, strings) on every sheet. This is a consistency
   check of the repository, not of the method.
+* Table formulas are stored so that they spill: the cell marks and the metadata
+  part are compared with what XlsxWriter writes for a dynamic-array formula
+  (outside library). The macro-enabled copies carry xlwings' own standalone VBA
+  project byte for byte (outside source: the installed xlwings template), and
+  their file type passes the check xlwings' ribbon makes before Import Functions
+  (read from the installed add-in's source).
 * Outside program: LibreOffice Calc (headless, through
   ``unbend.udfs.recalc.recalculate_many``) opens the committed workbooks,
   computes every built-in formula of the model sheet itself and saves its
@@ -55,7 +61,10 @@ needs_soffice = pytest.mark.skipif(SOFFICE is None, reason="LibreOffice (soffice
 def rebuilt(tmp_path_factory):
     folder = tmp_path_factory.mktemp("rebuilt")
     paths = build_demo_workbooks(folder)
-    return {Path(p).stem: Path(p) for p in paths}
+    return {Path(p).name: Path(p) for p in paths}
+
+
+FILES = [f"{n}.xlsx" for n in NAMES] + [f"{n}.xlsm" for n in NAMES]
 
 
 def _cell_key(v):
@@ -81,13 +90,13 @@ def _where(a, b) -> str:
 
 
 def test_rebuild_makes_the_same_set_of_files(rebuilt):
-    committed = sorted(p.stem for p in COMMITTED.glob("*.xlsx"))
-    assert committed == sorted(rebuilt) == sorted(NAMES)
+    committed = sorted(p.name for p in COMMITTED.glob("*.xls[xm]"))
+    assert committed == sorted(rebuilt) == sorted(FILES)
 
 
-@pytest.mark.parametrize("name", NAMES)
+@pytest.mark.parametrize("name", FILES)
 def test_rebuilt_cells_equal_committed(rebuilt, name):
-    old = openpyxl.load_workbook(COMMITTED / f"{name}.xlsx")
+    old = openpyxl.load_workbook(COMMITTED / name)
     new = openpyxl.load_workbook(rebuilt[name])
     assert old.sheetnames == new.sheetnames
     diffs = []

@@ -574,13 +574,26 @@ def table(header, rows) -> list:
     """
     if hasattr(rows, "to_numpy"):
         rows = rows.to_numpy()
-    body = [_row_values(r) for r in (() if rows is None else rows)]
+    body = [list(r) if type(r) in (list, tuple) else _row_values(r) for r in (() if rows is None else rows)]
     if header is not None and len(_row_values(header)):
         body.insert(0, _row_values(header))
     width = max(map(len, body), default=0)
     if width == 0:
         return [[""]]
+    if _plain_cells(body):  # nothing to clean: only pad (one C-speed type check, one vectorised finiteness check)
+        return [r + [""] * (width - len(r)) for r in body]
     return [[_out(v) for v in r] + [""] * (width - len(r)) for r in body]
+
+
+_PLAIN_OUT = frozenset({float, int, str, bool})
+
+
+def _plain_cells(body: list) -> bool:
+    """True when every cell is a finite float, an int, a str or a bool (what :func:`_out` leaves unchanged)."""
+    if not set(map(type, itertools.chain.from_iterable(body))) <= _PLAIN_OUT:
+        return False
+    floats = [v for v in itertools.chain.from_iterable(body) if type(v) is float]
+    return not floats or bool(np.isfinite(np.array(floats)).all())
 
 
 def column(values, header=None) -> list:

@@ -1,15 +1,23 @@
 """Demo workbooks built from invented, seeded data in scenarios of our own.
 
 Each workbook has: a Notes sheet in plain words; the data in a spreadsheet
-table on the Data sheet; cells that call the unbend functions (they need the
-add-in); a model sheet written entirely in built-in formulas that reads the
+table on the Data sheet; cells that call the unbend functions (they need
+xlwings); a model sheet written entirely in built-in formulas that reads the
 Data sheet, so it recalculates without the add-in; native charts before and
 after re-expression and of the residuals; and the xlwings configuration sheet
 that names the UDF module.
+
+Formulas that return a table are stored as dynamic arrays (:mod:`.spill`), so
+they spill in versions that have them. Every workbook comes twice: ``.xlsx``
+(no macros, for colleagues) and ``.xlsm``, a macro-enabled copy that carries
+xlwings' standalone VBA module, taken from the ``quickstart_standalone.xlsm``
+template of the xlwings installed here, so Import Functions works in it as it
+is, with or without the xlwings add-in.
 """
 from __future__ import annotations
 
 import os
+import zipfile
 
 import numpy as np
 from openpyxl import Workbook
@@ -24,8 +32,10 @@ from unbend import demo_data
 from unbend.fitting import CAUTION
 
 from .sheets import HEADER_FONT, NOTE_FONT, TITLE_FONT, atomic_save, printable, put, scatter_chart, set_widths
+from .spill import put_spilling, save_spilling
 
-__all__ = ["SCENARIOS", "build_demo_workbooks", "build_demo_workbook", "DEMO_REPORT_SCENARIO"]
+__all__ = ["SCENARIOS", "build_demo_workbooks", "build_demo_workbook", "DEMO_REPORT_SCENARIO", "standalone_template",
+           "MACRO_NOTES"]
 
 #: Rows below the data that the model sheet already links to, for data added later.
 LINKED_SPARE = 200
@@ -69,12 +79,12 @@ SCENARIOS = {
 def DEMO_REPORT_SCENARIO(paths):
     """(name, path, y column, x column) of the scenario `unbend demo` reports on."""
     name = "river_sediment"
-    path = next(p for p in paths if os.path.basename(p).startswith(name))
+    path = next(p for p in paths if os.path.basename(p) == f"{name}.xlsx")
     sc = SCENARIOS[name]
     return name, path, sc["y"], sc["x"]
 
 
-def _notes(ws, sc, extra):
+def _notes(ws, sc, extra, macro_notes=()):
     put(ws, 1, 1, sc["title"]).font = TITLE_FONT
     lines = [
         "INVENTED DATA: " + demo_data.INVENTED + " The scenario is made up to show the method.",
@@ -85,7 +95,12 @@ def _notes(ws, sc, extra):
         "- Data: the measurements as a table. Add new rows at the bottom of the table; formulas that use its "
         "columns grow with it.",
     ] + extra + [
-        "- xlwings.conf: tells the xlwings add-in to load the unbend functions (UDF module unbend.udfs).",
+        "- xlwings.conf: tells xlwings where the unbend functions are (UDF module unbend.udfs).",
+        "",
+        "Formulas that return a table spill into the cells below and to the right in versions with dynamic "
+        "arrays. A version without them shows only the table's first value: select a block of cells starting at "
+        "the formula, as large as the table, click in the formula bar and press Ctrl+Shift+Enter.",
+    ] + list(macro_notes) + [
         "",
         "Cautions: " + CAUTION,
     ]
@@ -126,9 +141,9 @@ def _chart(ws, title, xref, yref, xlabel, ylabel, anchor):
 def _addin_sheet(wb, sc, yref, xref, new_first, new_last):
     ws = wb.create_sheet("With the add-in")
     put(ws, 1, 1, "Cells that call the unbend functions").font = TITLE_FONT
-    note = put(ws, 2, 1, "These formulas need the xlwings add-in with the UDF module unbend.udfs (Windows desktop "
-                         "spreadsheet program). Without it they show a name error; the 'Model (no add-in)' sheet "
-                         "gives the same line in built-in formulas.")
+    note = put(ws, 2, 1, "These formulas need xlwings with the UDF module unbend.udfs (Windows desktop spreadsheet "
+                         "program; see Notes). Without it they show a name error; the 'Model (no add-in)' sheet "
+                         "gives the same line in built-in formulas. Tables spill where the program has dynamic arrays.")
     note.font = NOTE_FONT
     note.alignment = Alignment(wrap_text=True)
     ws.merge_cells("A2:H2")
@@ -137,31 +152,31 @@ def _addin_sheet(wb, sc, yref, xref, new_first, new_last):
         ("rung for y", f"=UNBEND_POWER({yref},{xref})"),
         ("rung for x", f'=UNBEND_POWER({yref},{xref},"x")'),
         ("in words", f"=UNBEND_EXPLAIN({yref},{xref})"),
-        ("formula to share (median)", f'=UNBEND_FORMULA({yref},{xref},,,"B20")'),
+        ("formula to share (median)", f'=UNBEND_FORMULA({yref},{xref},,,B20)'),
         ("formula to share (mean)", f'=UNBEND_FORMULA({yref},{xref},,,"B20","mean")'),
     ]
     put(ws, 3, 3, "the formula in column B, as text").font = NOTE_FONT
     r = 4
     for label, formula in rows:
         put(ws, r, 1, label).font = HEADER_FONT
-        put(ws, r, 2, formula, formula=True)
+        put_spilling(ws, f"B{r}", formula)  # one value, but stored the same way: no implicit-intersection @
         put(ws, r, 3, formula).font = NOTE_FONT
         r += 1
     put(ws, 10, 1, "Predictions at the new x values of the model sheet (one row per new x):").font = HEADER_FONT
-    put(ws, 11, 1, f"=UNBEND_PREDICT({yref},{xref},'Model (no add-in)'!$A${new_first}:$A${new_last})", formula=True)
+    put_spilling(ws, "A11", f"=UNBEND_PREDICT({yref},{xref},'Model (no add-in)'!$A${new_first}:$A${new_last})")
     put(ws, 19, 1, "x for the shared formula").font = HEADER_FONT
     put(ws, 20, 1, "x value:")
     put(ws, 20, 2, 50.0)
     put(ws, 22, 1, "Suggested powers:").font = HEADER_FONT
-    put(ws, 23, 1, f"=UNBEND_SUGGEST({yref},{xref})", formula=True)
+    put_spilling(ws, "A23", f"=UNBEND_SUGGEST({yref},{xref})")
     put(ws, 28, 1, "The fit:").font = HEADER_FONT
-    put(ws, 29, 1, f"=UNBEND_FIT({yref},{xref})", formula=True)
+    put_spilling(ws, "A29", f"=UNBEND_FIT({yref},{xref})")
     put(ws, 75, 1, "Every pair of rungs:").font = HEADER_FONT
-    put(ws, 76, 1, f"=UNBEND_SCAN({yref},{xref})", formula=True)
+    put_spilling(ws, "A76", f"=UNBEND_SCAN({yref},{xref})")
     put(ws, 115, 1, "Residual table for charts:").font = HEADER_FONT
-    put(ws, 116, 1, f"=UNBEND_RESIDUALS({yref},{xref})", formula=True)
+    put_spilling(ws, "A116", f"=UNBEND_RESIDUALS({yref},{xref})")
     for r in (11, 23, 29, 76, 116):
-        put(ws, r - 1, 3, ws.cell(row=r, column=1).value).font = NOTE_FONT
+        put(ws, r - 1, 3, ws.cell(row=r, column=1).value.text).font = NOTE_FONT
     set_widths(ws, {1: 28, 2: 30, 3: 90})
 
 
@@ -176,7 +191,7 @@ def _link_model_to_data(model, data_ws, n_data, y_col, x_col):
     return first
 
 
-def _regression_book(name, sc):
+def _regression_book(name, sc, macro_notes=()):
     from .portable import NEW_COLUMNS, add_portable_sheet
 
     df = sc["make"]()
@@ -211,9 +226,9 @@ def _regression_book(name, sc):
         f"- Model (no add-in): the straight line of {unbend.rung_label(yp)} of y on {unbend.rung_label(xp)} of x in "
         "built-in formulas only. It reads the Data sheet, and its yellow cells (powers, starts, level) can be changed. "
         "Predictions come back in original units with intervals and an extrapolation flag.",
-        "- With the add-in: the same analysis through the unbend cell functions (needs the xlwings add-in).",
+        "- With the add-in: the same analysis through the unbend cell functions (needs xlwings).",
         "- Charts: the data before and after re-expression, and the residuals; they work without the add-in.",
-    ])
+    ], macro_notes)
     return wb
 
 
@@ -222,7 +237,7 @@ def _col_index(letter: str) -> int:
     return column_index_from_string(letter)
 
 
-def _spread_book(name, sc):
+def _spread_book(name, sc, macro_notes=()):
     df = sc["make"]()
     wb = Workbook()
     notes = wb.active
@@ -258,9 +273,9 @@ def _spread_book(name, sc):
     put(ws, g_last + 3, 3, f"=1-C{g_last + 2}", formula=True)
     put(ws, g_last + 4, 1, "With the add-in (interval and rung):").font = HEADER_FONT
     yref, gref = f"{sc['table']}[{sc['y']}]", f"{sc['table']}[{sc['groups']}]"
-    put(ws, g_last + 5, 1, f"=UNBEND_SPREAD({yref},{gref})", formula=True)
+    put_spilling(ws, f"A{g_last + 5}", f"=UNBEND_SPREAD({yref},{gref})")
     put(ws, g_last + 20, 1, "Symmetry power of all results (with the add-in):").font = HEADER_FONT
-    put(ws, g_last + 21, 1, f"=UNBEND_SYMMETRY({yref})", formula=True)
+    put_spilling(ws, f"A{g_last + 21}", f"=UNBEND_SYMMETRY({yref})")
     set_widths(ws, {1: 30, 2: 10, 3: 16, 4: 16, 5: 12, 6: 12})
     xr = Reference(ws, min_col=5, min_row=5, max_row=g_last)
     yr = Reference(ws, min_col=6, min_row=5, max_row=g_last)
@@ -270,20 +285,61 @@ def _spread_book(name, sc):
         "- Spread vs level: each batch's median and interquartile range in built-in formulas, the line of LN spread "
         "on LN level and the power it suggests; a chart of the same. The add-in cells give the interval and rung.",
         f"- The group formulas read rows 2 to {last} of the Data sheet, so rows added to the table are included.",
-    ])
+    ], macro_notes)
     return wb
 
 
-def build_demo_workbook(name: str, folder) -> str:
-    """Build one demo workbook into ``folder``; returns its path."""
+def standalone_template() -> str:
+    """xlwings' own template with its standalone VBA module (``quickstart_standalone.xlsm``), as installed."""
+    import xlwings
+    return os.path.join(os.path.dirname(xlwings.__file__), "quickstart_standalone.xlsm")
+
+
+def MACRO_NOTES(macro_enabled: bool) -> list:
+    """The Notes lines that say which copy this is and how its functions are switched on."""
+    import xlwings
+    v = xlwings.__version__
+    if not macro_enabled:
+        return ["", "This copy (.xlsx) has no macros: colleagues can open it anywhere. To use the unbend functions, "
+                    "open the macro-enabled copy (.xlsm) beside it (see the README, 'For spreadsheet users')."]
+    return ["", f"This copy (.xlsm) carries xlwings' standalone VBA module (from xlwings {v}), so it needs neither a "
+                "VBA reference nor the xlwings add-in. Once: install Python, xlwings and unbend, run 'xlwings config "
+                "create', and allow 'Trust access to the VBA project object model' (Trust Center, Macro Settings). "
+                "Then open this file, enable its macros, and run the macro ImportPythonUDFs (Alt+F8), or click Import "
+                "Functions on the xlwings tab.",
+            f"The module is tied to xlwings {v}; with another xlwings version installed, rebuild these files with "
+            "'unbend demo'."]
+
+
+def _macro_enabled(wb):
+    """Give the workbook xlwings' standalone VBA project (openpyxl copies it from the template on save)."""
+    wb.vba_archive = zipfile.ZipFile(standalone_template())
+    wb.code_name = "ThisWorkbook"  # the template's project has ThisWorkbook, Sheet1 and Sheet2 modules
+    for i, ws in enumerate(wb.worksheets, start=1):
+        ws.sheet_properties.codeName = f"Sheet{i}"
+    return wb
+
+
+def build_demo_workbook(name: str, folder, macro_enabled: bool = False) -> str:
+    """Build one demo workbook into ``folder`` (``.xlsx``, or the macro-enabled ``.xlsm``); returns its path."""
     sc = SCENARIOS[name]
-    wb = _spread_book(name, sc) if "groups" in sc else _regression_book(name, sc)
+    notes = MACRO_NOTES(macro_enabled)
+    wb = _spread_book(name, sc, notes) if "groups" in sc else _regression_book(name, sc, notes)
     printable(wb)
-    path = os.path.join(folder, f"{name}.xlsx")
-    return atomic_save(wb.save, path)
+    if macro_enabled:
+        _macro_enabled(wb)
+    path = os.path.join(folder, f"{name}.{'xlsm' if macro_enabled else 'xlsx'}")
+    try:
+        return atomic_save(lambda tmp: save_spilling(wb, tmp), path)
+    finally:
+        if wb.vba_archive is not None:
+            wb.vba_archive.close()
 
 
-def build_demo_workbooks(folder) -> list:
-    """Build every demo workbook into ``folder``; returns their paths."""
+def build_demo_workbooks(folder, macro_enabled: bool = True) -> list:
+    """Build every demo workbook into ``folder``: the ``.xlsx`` files, then the ``.xlsm`` copies; returns their paths."""
     os.makedirs(folder, exist_ok=True)
-    return [build_demo_workbook(name, folder) for name in SCENARIOS]
+    paths = [build_demo_workbook(name, folder) for name in SCENARIOS]
+    if macro_enabled:
+        paths += [build_demo_workbook(name, folder, macro_enabled=True) for name in SCENARIOS]
+    return paths

@@ -8,7 +8,15 @@ header row. Any problem comes back as one line of text beginning
 The parameters carry no type annotations on purpose: xlwings would read
 annotations as converters. Each argument's description is given with
 ``xw.arg(..., doc=...)`` and kept in :data:`FUNCTIONS` as well.
+
+How the spreadsheet program's values reach a function is set in one place,
+:func:`cell_function`: every argument is read by :class:`unbend.udfs.host.HostCells`
+(references cut to the used range, raw values normalised in one pass, error
+codes of any age kept as error values), results go back through
+:class:`unbend.udfs.host.HostResult`, and functions that fit a line are not
+run while the function wizard is open.
 """
+import functools
 import inspect
 
 import numpy as np
@@ -22,6 +30,7 @@ from unbend.wording import fitted_rung_words
 
 from . import cells, intake
 from .formula import model_formula
+from .host import HostCells, HostProblem, HostReference, HostResult, SameCells
 from .wording import SCAN_HEADERS, prediction_headers
 
 CATEGORY = "unbend"
@@ -30,6 +39,8 @@ CATEGORY = "unbend"
 FUNCTIONS = {}
 
 _cache = cells.ResultCache(maxsize=128)
+#: Readings of y and x that many cells share (a thousand predictions over the same two columns).
+_readings = SameCells()
 
 _Y = ("Range of y values (the response), one column; numbers written as text are read, blanks, other text and "
       "errors are skipped and counted by reason.")
@@ -40,17 +51,49 @@ _YS = "Start added to y before re-expressing, for zeros or negatives (default 0)
 _XS = "Start added to x before re-expressing (default 0)."
 
 
+class Reference(str):
+    """An argument description marking an argument that takes a cell reference as a reference.
+
+    The function then receives an ``xlwings.Range`` for a reference (and a plain value otherwise)
+    instead of the cell's value.
+    """
+
+
+#: Functions cheap enough to run while the function wizard shows a preview of the result; every
+#: other function (any that fits a line) returns nothing until the wizard is closed.
+PREVIEW_IN_WIZARD = frozenset({"UNBEND_APPLY", "UNBEND_UNDO"})
+
+
+def _host_checked(fn, params):
+    """Turn an argument the host could not hand over into an ``unbend:`` message naming it."""
+    @functools.wraps(fn)
+    def checked(*args, **kwargs):
+        for name, a in zip(params, args):
+            if type(a) is HostProblem:
+                raise UnbendError(f"{name}: {a.message}")
+        return fn(*args, **kwargs)
+    return checked
+
+
 def cell_function(**arg_docs):
-    """Register a cell function: safe wrapper, xlwings decorators, argument descriptions."""
+    """Register a cell function: safe wrapper, xlwings decorators, argument descriptions.
+
+    Every argument is read with :class:`~unbend.udfs.host.HostCells` (or kept as a reference with
+    :class:`~unbend.udfs.host.HostReference` when its description is a :class:`Reference`); the
+    result goes back through :class:`~unbend.udfs.host.HostResult`; the function is not called
+    from the function wizard unless it is in :data:`PREVIEW_IN_WIZARD`.
+    """
     def deco(fn):
         params = list(inspect.signature(fn).parameters)
         if set(params) != set(arg_docs):
             raise RuntimeError(f"{fn.__name__}: describe exactly its arguments {params}")
-        wrapped = cells.safe(fn)
+        wrapped = cells.safe(_host_checked(fn, params))
         for name in reversed(params):
-            wrapped = xw.arg(name, doc=arg_docs[name])(wrapped)
-        wrapped = xw.func(category=CATEGORY)(wrapped)
-        FUNCTIONS[fn.__name__] = {"doc": (fn.__doc__ or "").strip(), "args": dict(arg_docs)}
+            convert = HostReference if isinstance(arg_docs[name], Reference) else HostCells
+            wrapped = xw.arg(name, convert, doc=str(arg_docs[name]))(wrapped)
+        wrapped = xw.ret(HostResult)(wrapped)
+        wrapped = xw.func(category=CATEGORY, call_in_wizard=fn.__name__ in PREVIEW_IN_WIZARD)(wrapped)
+        FUNCTIONS[fn.__name__] = {"doc": (fn.__doc__ or "").strip(), "args": {k: str(v) for k, v in arg_docs.items()}}
         return wrapped
     return deco
 
@@ -58,8 +101,11 @@ def cell_function(**arg_docs):
 # ----------------------------------------------------------------------------- inputs
 
 def _yx(y, x):
-    """y as a vector and x as a block, rows used only, and the reading (reasons for the rows skipped)."""
-    rows = _read_yx(y, x)
+    """y as a vector and x as a block, rows used only, and the reading (reasons for the rows skipped).
+
+    The reading of equal cells is shared between calls (see ``SameCells``); the arrays returned are new.
+    """
+    rows = _readings.get_or_read((y, x), lambda: _read_yx(y, x))
     return rows.y[rows.used], rows.X[rows.used], rows
 
 
@@ -74,8 +120,8 @@ def _read_yx(y, x):
 
 
 def _y_only(y):
-    """y alone, rows used only, and its reading."""
-    rows = cells.read_rows(y)
+    """y alone, rows used only, and its reading (shared between calls on equal cells)."""
+    rows = _readings.get_or_read((y,), lambda: cells.read_rows(y))
     return rows.y[rows.used], rows
 
 
@@ -327,16 +373,21 @@ def UNBEND_UNDO(values, power, start=None):
 
 
 @cell_function(y=_Y, x="Range of x values, one column.", y_power=_YP, x_power=_XP,
-               x_cell='The cell to use as x in the formula, as text such as "B2" (default "A2").',
+               x_cell=Reference('The cell to use as x in the formula: a reference such as B2, or text such as "B2" '
+                                '(default "A2").'),
                what='"median" (default) or "mean" (adds the smearing correction).')
 def UNBEND_FORMULA(y, x, y_power=None, x_power=None, x_cell=None, what=None):
     """Text: the fitted line as a formula in built-in functions (LN, EXP, POWER ...) that a colleague can paste without the add-in."""
     w = cells.optional_text(what, "what", ("median", "mean"), "median")
     ref = "A2" if x_cell is None or (isinstance(x_cell, str) and not x_cell.strip()) else x_cell
-    if hasattr(ref, "address"):
+    if hasattr(ref, "get_address") and hasattr(ref, "shape"):  # a reference (xlwings Range)
+        if tuple(ref.shape) != (1, 1):
+            raise UnbendError(f"x_cell must be one cell; got a block of {ref.shape[0]} x {ref.shape[1]}.")
+        ref = ref.get_address(False, False)  # relative, without the sheet: "B2"
+    elif hasattr(ref, "address"):
         ref = ref.address
     if not isinstance(ref, str):
-        raise UnbendError('x_cell must be a cell reference written as text, such as "B2".')
+        raise UnbendError('x_cell must be a cell reference, such as B2, or text such as "B2".')
     f, _ = _fit(y, x, y_power, x_power, None, None)
     return model_formula(f, ref, w)
 

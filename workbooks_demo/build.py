@@ -1,8 +1,10 @@
 """Build the demo workbooks into this folder: `python workbooks_demo/build.py`.
 
 Every number in them is invented by unbend's own seeded script (see
-`unbend.demo_data`); the committed .xlsx files are this script's output, and
-a test rebuilds them and compares cell contents.
+`unbend.demo_data`); the committed .xlsx files and their macro-enabled .xlsm
+copies (with the standalone VBA module of the xlwings installed where this
+runs) are this script's output, and a test rebuilds them and compares cell
+contents.
 """
 import os
 import sys
