@@ -253,8 +253,8 @@ def as_censored(censored, n: int, name: str = "censored") -> np.ndarray | None:
                           "a value reported as '<0.5'); got a single value.")
     if hasattr(censored, "to_numpy") and not isinstance(censored, np.ndarray):
         censored = censored.to_numpy()
-    try:
-        arr = np.asarray(censored)
+    try:  # lists are read cell by cell (numpy would turn [False, "<"] into text throughout)
+        arr = censored if isinstance(censored, np.ndarray) else np.array(censored, dtype=object)
     except (TypeError, ValueError):
         raise UnbendError(f"{name} could not be read as a column of True/False.") from None
     if arr.ndim == 2 and 1 in arr.shape:
@@ -267,7 +267,9 @@ def as_censored(censored, n: int, name: str = "censored") -> np.ndarray | None:
         return arr.astype(bool)  # a copy
     out = np.zeros(n, dtype=bool)
     for i, v in enumerate(arr.tolist()):
-        if isinstance(v, bool) or (isinstance(v, (int, float)) and not isinstance(v, bool) and v in (0, 1)):
+        if isinstance(v, np.generic):
+            v = v.item()
+        if isinstance(v, bool) or (isinstance(v, (int, float)) and v in (0, 1)):
             out[i] = bool(v)
         else:
             raise UnbendError(f"{name} row {i + 1} is {v!r}; each row must be True (y is an upper limit) or False "

@@ -51,6 +51,17 @@ _HALF_LOG_2PI = 0.5 * math.log(2.0 * math.pi)
 
 
 # ============================================================================ the likelihood
+class _Split:
+    """A design split once into its measured (u) and censored (c) rows; reused across powers of y."""
+
+    def __init__(self, A: np.ndarray, cens: np.ndarray):
+        self.A, self.cens = A, cens
+        self.Au, self.Ac = A[~cens], A[cens]
+        self.nu = self.Au.shape[0]
+        self.p = A.shape[1]
+        self.AuAu = self.Au.T @ self.Au
+
+
 class _Problem:
     """The censored normal line on a standardised scale: measured rows (u) and censored rows (c).
 
@@ -59,32 +70,26 @@ class _Problem:
     measured row and the (re-expressed) limit of a censored row.
     """
 
-    def __init__(self, A: np.ndarray, z: np.ndarray, cens: np.ndarray):
-        self.A, self.z, self.cens = A, z, cens
-        self.Au, self.zu = A[~cens], z[~cens]
-        self.Ac, self.zc = A[cens], z[cens]
-        self.nu = self.zu.size
-        self.p = A.shape[1]
-        self.AuAu = self.Au.T @ self.Au
+    def __init__(self, A, z: np.ndarray, cens: np.ndarray | None = None):
+        sp = A if isinstance(A, _Split) else _Split(A, cens)
+        self.split = sp
+        self.A, self.cens, self.Au, self.Ac, self.nu, self.p, self.AuAu = (
+            sp.A, sp.cens, sp.Au, sp.Ac, sp.nu, sp.p, sp.AuAu)
+        self.z, self.zu, self.zc = z, z[~sp.cens], z[sp.cens]
 
-    def loglik(self, theta: np.ndarray) -> float:
-        b, tau = theta[:-1], theta[-1]
-        s = math.exp(-tau)
-        ru = (self.zu - self.Au @ b) * s
-        c = (self.zc - self.Ac @ b) * s
-        return float(-self.nu * (_HALF_LOG_2PI + tau) - 0.5 * (ru @ ru) + special.log_ndtr(c).sum())
-
-    def derivs(self, theta: np.ndarray):
+    def derivs(self, theta: np.ndarray, hessian: bool = True):
         """Log-likelihood, gradient and Hessian (analytic) at ``theta``."""
         b, tau = theta[:-1], theta[-1]
         s = math.exp(-tau)
         ru = (self.zu - self.Au @ b) * s
         c = (self.zc - self.Ac @ b) * s
         lphi = special.log_ndtr(c)
+        sru2 = float(np.einsum("i,i->", ru, ru))
+        ll = float(-self.nu * (_HALF_LOG_2PI + tau) - 0.5 * sru2 + lphi.sum())
+        if not hessian:
+            return ll, None, None
         h = np.exp(-0.5 * c * c - _HALF_LOG_2PI - lphi)  # inverse Mills ratio phi(c) / Phi(c), stable in the tail
         k = h * (c + h)  # minus the second derivative of log Phi(c)
-        sru2 = float(ru @ ru)
-        ll = float(-self.nu * (_HALF_LOG_2PI + tau) - 0.5 * sru2 + lphi.sum())
         p = self.p
         g = np.empty(p + 1)
         g[:p] = (self.Au.T @ ru - self.Ac.T @ h) * s
@@ -94,6 +99,9 @@ class _Problem:
         H[:p, p] = H[p, :p] = (self.Au.T @ (-2.0 * ru) + self.Ac.T @ (h - k * c)) * s
         H[p, p] = -2.0 * sru2 + float(c @ (h - k * c))
         return ll, g, H
+
+    def loglik(self, theta: np.ndarray) -> float:
+        return self.derivs(theta, hessian=False)[0]
 
     def start(self) -> np.ndarray:
         """Least squares on the measured rows (all rows, limits as values, when they are too few)."""
@@ -114,12 +122,13 @@ def _maximise(prob: _Problem, theta0: np.ndarray, maxit: int = 200):
     The damping only acts far from the maximum (where the Hessian in
     ``(b, log sigma)`` need not be negative definite); every accepted step
     raises the likelihood, and near the maximum the steps are plain Newton
-    steps (quadratic convergence).
+    steps (quadratic convergence). Each trial point is evaluated with its
+    gradient and Hessian at once, since nearly every step is accepted.
     """
     theta = np.array(theta0, dtype=float)
     with np.errstate(all="ignore"):
         ll, g, H = prob.derivs(theta)
-    if not (np.isfinite(ll) and np.all(np.isfinite(g))):
+    if not (np.isfinite(ll) and np.all(np.isfinite(g)) and np.all(np.isfinite(H))):
         raise _NoMaximum
     lam = 0.0
     p1 = theta.size
@@ -138,18 +147,16 @@ def _maximise(prob: _Problem, theta0: np.ndarray, maxit: int = 200):
                 step = step * (5.0 / abs(step[-1]))
             new = theta + step
             with np.errstate(all="ignore"):
-                ll_new = prob.loglik(new)
-            if np.isfinite(ll_new) and ll_new >= ll - 1e-12 * max(1.0, abs(ll)):
+                out = prob.derivs(new)
+            if (np.isfinite(out[0]) and out[0] >= ll - 1e-12 * max(1.0, abs(ll)) and np.all(np.isfinite(out[1]))
+                    and np.all(np.isfinite(out[2]))):
                 break
             lam = max(lam * 10.0, 1e-8)
         else:
             raise _NoMaximum
-        small = float(np.max(np.abs(step))) < 1e-10 and lam == 0.0
+        small = float(np.max(np.abs(step))) < 1e-8 and lam == 0.0  # the point just reached is then ~1e-16 off
         theta = new
-        with np.errstate(all="ignore"):
-            ll, g, H = prob.derivs(theta)
-        if not (np.isfinite(ll) and np.all(np.isfinite(g)) and np.all(np.isfinite(H))):
-            raise _NoMaximum
+        ll, g, H = out
         if theta[-1] < -27.0:  # sigma below 2e-12 of the spread of the data: the likelihood has no top
             raise _NoMaximum
         lam = lam / 10.0 if lam > 1e-7 else 0.0
@@ -199,54 +206,85 @@ def _standardise(z: np.ndarray):
 
 
 # ============================================================================ checks
-def _score_test(prob: _Problem, theta: np.ndarray, E: np.ndarray | None = None, V: np.ndarray | None = None):
+class _RowWeights:
+    """Per-row pieces of the gradient and Hessian at the censored maximum, in the original row order.
+
+    For a column ``a`` of the line and ``w`` of log sigma, the extended
+    Hessian blocks are ``a' diag(mm) a'``, ``a' diag(ms) w``, ``w' diag(ss) w``
+    and the scores ``a' gm`` and ``w' gs``.
+    """
+
+    def __init__(self, prob: _Problem, theta: np.ndarray):
+        cens = prob.cens
+        b, tau = theta[:-1], theta[-1]
+        s = math.exp(-tau)
+        r = (prob.z - prob.A @ b) * s
+        c = r[cens]
+        h = np.exp(-0.5 * c * c - _HALF_LOG_2PI - special.log_ndtr(c))
+        k = h * (c + h)
+        self.mm = np.full(r.size, -s * s)
+        self.mm[cens] = -k * (s * s)
+        self.ms = -2.0 * r * s
+        self.ms[cens] = (h - k * c) * s
+        self.ss = -2.0 * r * r
+        self.ss[cens] = c * (h - k * c)
+        self.gm = r * s
+        self.gm[cens] = -h * s
+        self.gs = r * r - 1.0
+        self.gs[cens] = -h * c
+
+
+def _wdot(M: np.ndarray, w: np.ndarray, N: np.ndarray) -> np.ndarray:
+    """M' diag(w) N."""
+    return (M.T * w) @ N
+
+
+def _score_test(prob: _Problem, H: np.ndarray, wts: _RowWeights, E: np.ndarray | None = None,
+                V: np.ndarray | None = None):
     """Score (Lagrange multiplier) test of extra columns at the censored maximum.
 
     ``E``: columns added to the line (coefficients 0 under the fit);
     ``V``: columns added to log sigma (log sigma = tau + V gamma, gamma 0
-    under the fit). The statistic is ``g' (-H)^-1 g`` over the extended
-    parameters, with the score ``g`` of the added parameters and the observed
-    information of the extended model, all at the fitted parameters.
+    under the fit); one of them. The statistic is ``g' (-H)^-1 g`` over the
+    extended parameters, with the score ``g`` of the added parameters and the
+    observed information of the extended model, all at the fitted parameters
+    (``H`` is the fit's own Hessian in (b, log sigma)).
 
     Returns
     -------
     (statistic, df, direction) with direction the one-step estimate of the added
     parameters; None when the information is not positive definite.
     """
-    cens = prob.cens
-    A = prob.A if E is None else np.column_stack([prob.A, E])
-    S = np.ones((A.shape[0], 1)) if V is None else np.column_stack([np.ones(A.shape[0]), V])
-    p = theta.size - 1
-    b, tau = theta[:-1], theta[-1]
-    s = math.exp(-tau)
-    Au, Ac, Su, Sc = A[~cens], A[cens], S[~cens], S[cens]
-    ru = (prob.zu - prob.Au @ b) * s
-    c = (prob.zc - prob.Ac @ b) * s
-    h = np.exp(-0.5 * c * c - _HALF_LOG_2PI - special.log_ndtr(c))
-    k = h * (c + h)
-    gm = (Au.T @ ru - Ac.T @ h) * s
-    gs = Su.T @ (ru * ru - 1.0) - Sc.T @ (h * c)
-    Hmm = -((Au.T @ Au) + (Ac.T * k) @ Ac) * (s * s)
-    Hms = ((Au.T * (-2.0 * ru)) @ Su + (Ac.T * (h - k * c)) @ Sc) * s
-    Hss = (Su.T * (-2.0 * ru * ru)) @ Su + (Sc.T * (c * (h - k * c))) @ Sc
-    H = np.block([[Hmm, Hms], [Hms.T, Hss]])
-    g = np.concatenate([gm, gs])
-    extra = np.zeros(g.size, dtype=bool)
-    extra[p:A.shape[1]] = True  # added line columns
-    extra[A.shape[1] + 1:] = True  # added log-sigma columns
-    g[~extra] = 0.0  # zero at the maximum; exactly zero here
+    A = prob.A
+    p1 = H.shape[0]
+    if E is not None:  # order: b, tau, e
+        cross = np.vstack([_wdot(A, wts.mm, E), (wts.ms @ E)[None, :]])
+        corner = _wdot(E, wts.mm, E)
+        score = E.T @ wts.gm
+    else:  # order: b, tau, gamma
+        cross = np.vstack([_wdot(A, wts.ms, V), (wts.ss @ V)[None, :]])
+        corner = _wdot(V, wts.ss, V)
+        score = V.T @ wts.gs
+    q = corner.shape[0]
+    Hx = np.empty((p1 + q, p1 + q))
+    Hx[:p1, :p1] = H
+    Hx[:p1, p1:] = cross
+    Hx[p1:, :p1] = cross.T
+    Hx[p1:, p1:] = corner
+    g = np.zeros(p1 + q)
+    g[p1:] = score
     try:
-        step = linalg.cho_solve(linalg.cho_factor(-H, lower=True), g)
+        step = linalg.cho_solve(linalg.cho_factor(-Hx, lower=True), g)
     except (linalg.LinAlgError, ValueError):
         return None
     stat = float(g @ step)
     if not np.isfinite(stat):
         return None
-    return max(stat, 0.0), int(extra.sum()), step[extra]
+    return max(stat, 0.0), q, step[p1:]
 
 
-def _checks(prob: _Problem, theta: np.ndarray, key: np.ndarray, k: int, single_limit: float | None,
-            z_limit: float | None):
+def _checks(prob: _Problem, theta: np.ndarray, H: np.ndarray, key: np.ndarray, k: int,
+            single_limit: float | None, z_limit: float | None):
     """Curvature, pattern, spread and normality checks that hold with censored values.
 
     Curvature (Tukey's squared fitted value), pattern (bins of x, or of the
@@ -261,13 +299,14 @@ def _checks(prob: _Problem, theta: np.ndarray, key: np.ndarray, k: int, single_l
     """
     n, p = prob.A.shape
     fitted = prob.A @ theta[:-1]
+    wts = _RowWeights(prob, theta)
     name_c = "Tukey one-degree-of-freedom (score test, censored likelihood)"
     curv = Check(name_c, np.nan, np.nan, None, 0.0)
     f = fitted - fitted.mean()
     sd = float(f.std())
     if n >= p + 3 and sd > 0:
         q = (f / sd) ** 2
-        res = _score_test(prob, theta, E=(q - q.mean())[:, None])
+        res = _score_test(prob, H, wts, E=(q - q.mean())[:, None])
         if res is not None:
             st, df, d = res
             curv = make_check(name_c, st, stats.chi2.sf(st, df), ALPHA, np.sign(d[0]))
@@ -278,7 +317,7 @@ def _checks(prob: _Problem, theta: np.ndarray, key: np.ndarray, k: int, single_l
         used = np.unique(bins)
         if used.size >= 2:
             E = (bins[:, None] == used[None, 1:]).astype(float)
-            res = _score_test(prob, theta, E=E)
+            res = _score_test(prob, H, wts, E=E)
             if res is not None:
                 st, df, _ = res
                 pat = make_check(name_p, st, stats.chi2.sf(st, df), PATTERN_ALPHA)
@@ -286,7 +325,7 @@ def _checks(prob: _Problem, theta: np.ndarray, key: np.ndarray, k: int, single_l
     spr = Check(name_s, np.nan, np.nan, None, 0.0)
     if n >= (p - 1) + 3:
         V = prob.A[:, 1:]
-        res = _score_test(prob, theta, V=V)
+        res = _score_test(prob, H, wts, V=V)
         if res is not None:
             st, df, d = res
             lv = V @ d
@@ -302,7 +341,7 @@ def _line_checks(core, y_t, yu, Xu, cens, limits):
     key = Xu[:, 0] if k == 1 else core.prob.A @ core.theta[:-1]
     single = limits[0] if len(limits) == 1 and np.all(yu[~cens] >= limits[0]) else None
     z_lim = None if single is None else (float(y_t.apply(np.array([single]))[0]) - core.z0) / core.zsc
-    curv, pat, spr, nor = _checks(core.prob, core.theta, key, k, single, z_lim)
+    curv, pat, spr, nor = _checks(core.prob, core.theta, core.H, key, k, single, z_lim)
     note = ("With censored values the curvature, pattern and spread checks are score tests in the censored "
             "likelihood (all rows count); the normality check uses the measured rows, cut off at the limit"
             + ("." if single is not None else " (not run here: the limits differ, or a measured value is below "
@@ -731,19 +770,35 @@ def normal_mean(fit, eta: np.ndarray) -> np.ndarray:
 
 
 def _integrated_mean(t: Reexpression, eta: np.ndarray, s: float) -> np.ndarray:
-    """E[g^-1(eta + s Z)], Z standard normal, for a positive power (reach z >= 0 unless the power is odd)."""
+    """E[g^-1(eta + s Z)], Z standard normal, for a positive power.
+
+    The back-transform behaves like a fractional power of z near z = 0 (the
+    edge of the reach of an even or fractional power, a cusp inside it for
+    an odd one), at t0 = -eta / s. Each side of t0 (within +-12 SD) is
+    integrated by 200-point Gauss-Legendre through ``t = t0 +- width w^2``,
+    which clusters the nodes at t0 and makes the integrand smooth there; the
+    mass below the reach of an even or fractional power sits at its edge.
+    """
     from .express import _is_odd_integer
     out = np.full(eta.shape, np.nan)
     ok = np.isfinite(eta)
     e = eta[ok]
     top = 12.0
-    lo = np.full(e.shape, -top) if _is_odd_integer(t.power) else np.clip(-e / s, -top, top)
-    half = 0.5 * (top - lo)
-    nodes = lo[:, None] + half[:, None] * (_GL_T[None, :] + 1.0)  # t-values on [lo, top]
-    vals = t.invert(e[:, None] + s * nodes) * np.exp(-0.5 * nodes * nodes - _HALF_LOG_2PI)
-    body = half * (vals @ _GL_W)
-    edge = t.invert(np.array([0.0]))[0] * special.ndtr(lo) if not _is_odd_integer(t.power) else 0.0
-    out[ok] = body + edge
+    a = np.clip(-e / s, -top, top)
+    w = 0.5 * (_GL_T + 1.0)
+    wts = _GL_W * w  # t = a +- width w^2: dt = 2 width w dw, dw = dT / 2
+
+    def side(width, sign):
+        nodes = a[:, None] + sign * width[:, None] * (w * w)[None, :]
+        vals = t.invert(e[:, None] + s * nodes) * np.exp(-0.5 * nodes * nodes - _HALF_LOG_2PI)
+        return width * (vals @ wts)
+
+    body = side(top - a, 1.0)
+    if _is_odd_integer(t.power):
+        body = body + side(a + top, -1.0)
+    else:
+        body = body + t.invert(np.array([0.0]))[0] * special.ndtr(a)
+    out[ok] = body
     return out
 
 
@@ -971,7 +1026,7 @@ class _Profile:
             zs, _, zsc = _standardise(u)
         except UnbendError:
             return -np.inf
-        prob = _Problem(A, zs, self.cens)
+        prob = _Problem(A if isinstance(A, _Split) else _Split(A, self.cens), zs)
         try:
             theta, ll, _, _ = _solve(prob, self.warm)
         except (_NoMaximum, np.linalg.LinAlgError, ValueError):
@@ -997,7 +1052,7 @@ class _BoxCoxCensored(_Profile):
         self.d = logv - self.m
         self.nu = int((~cens).sum())
         self.sum_d = float(self.d[~cens].sum())
-        self.A = _line_design(Xt, cens, v.size)
+        self.A = _Split(_line_design(Xt, cens, v.size), cens)  # split once for every power
         self.offset = -self.nu * self.m
 
     def subset(self, idx: np.ndarray) -> "_BoxCoxCensored":
