@@ -256,7 +256,7 @@ def as_censored(censored, n: int, name: str = "censored") -> np.ndarray | None:
     try:  # lists are read cell by cell (numpy would turn [False, "<"] into text throughout)
         arr = censored if isinstance(censored, np.ndarray) else np.array(censored, dtype=object)
     except (TypeError, ValueError):
-        raise UnbendError(f"{name} could not be read as a column of True/False.") from None
+        raise UnbendError(f"{name} could not be read; give a column of True/False, one per row of y.") from None
     if arr.ndim == 2 and 1 in arr.shape:
         arr = arr.reshape(-1)
     if arr.ndim != 1:

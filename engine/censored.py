@@ -477,8 +477,8 @@ def censoring_cautions(n: int, n_censored: int, limits) -> list[str]:
     if share > TOO_CENSORED:
         raise UnbendError(
             f"{n_censored} of {n} values ({share:.0%}) are below a limit. Above {TOO_CENSORED:.0%} censored, too "
-            "little is measured to estimate a line and its spread (common practice); report how many values "
-            "exceed the limit instead, or lower the limit (a more sensitive method) and measure again.")
+            "little is measured to estimate a line and its spread (common practice); use the count of values "
+            "above the limit instead, or check whether a more sensitive method (a lower limit) can measure them.")
     if share > MOSTLY_CENSORED:
         out.append(f"{n_censored} of {n} values ({share:.0%}) are below a limit: the line rests mostly on the "
                    "limits rather than on measured values; treat it as a rough guide.")
@@ -601,7 +601,9 @@ def fit_censored(y, x, censored, *, y_power=1.0, x_power=1.0, y_start=0.0, x_sta
                              x_names, y_name)
 
 
-def _fit_censored(y, x, censored, y_power, x_power, y_start, x_start, level, log10, y_family, x_names, y_name):
+def _fit_censored(y, x, censored, y_power, x_power, y_start, x_start, level, log10, y_family, x_names, y_name,
+                  least_squares_when_none=True):
+    """``least_squares_when_none=False`` runs the censored likelihood even with nothing censored (tests)."""
     level = check_level(level)
     yv = as_vector(y, "y")
     X = as_matrix(x, "x")
@@ -611,8 +613,13 @@ def _fit_censored(y, x, censored, y_power, x_power, y_start, x_start, level, log
     rows = usable_rows(yv, X, need=max(3, k + 2))
     yu, Xu = yv[rows.used], X[rows.used]
     cens = np.zeros(yu.size, dtype=bool) if mask is None else mask[rows.used]
+    if not cens.any() and least_squares_when_none:  # the censored rows were skipped: as without censored=
+        from .fitting import fit
+        return fit(y, x, y_power=y_power, x_power=x_power, y_start=y_start, x_start=x_start, level=level,
+                   log10=log10, y_family=y_family, x_names=x_names, y_name=y_name)
     if y_family != "ladder":
-        raise UnbendError("values below a limit can be fitted only with the ladder of powers (y_family='ladder').")
+        raise UnbendError("values below a limit can be fitted only on the ladder of powers; use "
+                          "y_family='ladder'.")
     y_t = Reexpression(y_power, y_start, log10, y_family)
     x_t = Reexpression(x_power, x_start, log10)
     y_t.check(yu, "y")
@@ -1120,9 +1127,13 @@ def suggest_power_censored(y, x, censored, *, level=0.95, y_start=0.0, x_power=1
     level = check_level(level)
     rungs = _rungs(rungs)
     if family != "ladder":
-        raise UnbendError("values below a limit can be used only with the ladder of powers (family='ladder').")
+        raise UnbendError("values below a limit can be used only on the ladder of powers; use family='ladder'.")
     yu, Xu, rows = _prepare(y, x)
     cens = _censoring_of(censored, rows, as_vector(y, "y").size)
+    if not cens.any():  # the censored rows were skipped: as without censored=
+        from .power import suggest_power
+        return suggest_power(y, x, level=level, y_start=y_start, x_power=x_power, x_start=x_start, family=family,
+                             rungs=rungs)
     t_y = Reexpression(0.0, y_start)
     t_y.check(yu, "y")
     Xt = None
@@ -1167,6 +1178,9 @@ def suggest_x_power_censored(y, x, censored, *, level=0.95, y_power=1.0, y_start
     rungs = _rungs(rungs)
     yu, Xu, rows = _prepare(y, x)
     cens = _censoring_of(censored, rows, as_vector(y, "y").size)
+    if not cens.any():  # the censored rows were skipped: as without censored=
+        from .power import suggest_x_power
+        return suggest_x_power(y, x, level=level, y_power=y_power, y_start=y_start, x_start=x_start, rungs=rungs)
     t_y = Reexpression(y_power, y_start)
     t_y.check(yu, "y")
     t_x = Reexpression(0.0, x_start)

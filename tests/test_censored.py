@@ -18,7 +18,7 @@ from scipy import integrate, optimize, stats
 
 import unbend
 from unbend import UnbendError
-from unbend.censored import fit_censored
+from unbend.censored import _fit_censored
 
 
 def _lab(n=120, seed=5, share=0.3, b=(0.3, 0.6), sd=0.5, limits=None):
@@ -165,7 +165,9 @@ def test_the_censored_machinery_with_nothing_censored_is_least_squares(py, px):
     # nothing is censored: coefficients, standard errors, residual SD, log-likelihood, intervals
     y, x, _ = _lab(n=50, seed=12)
     f0 = unbend.fit(y, x, y_power=py, x_power=px)
-    f1 = fit_censored(y, x, np.zeros(y.size, dtype=bool), y_power=py, x_power=px)
+    f1 = _fit_censored(y, x, np.zeros(y.size, dtype=bool), py, px, 0.0, 0.0, 0.95, False, "ladder", None, None,
+                       least_squares_when_none=False)
+    assert isinstance(f1, unbend.CensoredFit) and f1.n_censored == 0
     np.testing.assert_allclose(f1.coef, f0.coef, rtol=1e-9, atol=1e-12)
     np.testing.assert_allclose(f1.se, f0.se, rtol=1e-9)
     assert f1.resid_sd == pytest.approx(f0.resid_sd, rel=1e-9)
@@ -324,6 +326,12 @@ def test_mask_is_checked_and_inputs_are_unchanged():
     y2[np.flatnonzero(c)[0]] = np.nan
     f2 = unbend.fit(y2, x, y_power=0, censored=c)
     assert f2.n_censored == int(c.sum()) - 1 and f2.n_skipped == 1
+    # the only censored row skipped: the least-squares fit, exactly as without censored=
+    only = np.zeros(y.size, dtype=bool)
+    only[np.flatnonzero(c)[0]] = True
+    f3, f4 = unbend.fit(y2, x, y_power=0, censored=only), unbend.fit(y2, x, y_power=0)
+    assert type(f3) is unbend.LineFit and np.array_equal(f3.coef, f4.coef) and f3.n_skipped == 1
+    assert unbend.suggest_power(y2, x, censored=only) == unbend.suggest_power(y2, x)
 
 
 def test_half_limit_comparison():
@@ -431,3 +439,59 @@ def test_simulation_long(share, n):
     if n >= 80:
         assert abs(bias["censored"]) < 0.2 * abs(bias["half"]) and abs(bias["censored"]) < 0.1 * abs(bias["dropped"])
     assert abs(hits.mean() - 0.95) < 0.015
+
+
+# ================================================================== hostile inputs (property tests)
+from hypothesis import given, strategies as st  # noqa: E402
+
+from test_engine_fuzz import PROFILE, check_linefit, fit_args, no_leak, run, xy_inputs  # noqa: E402
+
+
+@st.composite
+def _masks(draw, nrows):
+    """A censoring mask: usually one bool per row (a few True), sometimes 0/1, wrong length or junk."""
+    kind = draw(st.sampled_from(["bools"] * 6 + ["ints", "series", "short", "junk", "none"]))
+    bits = draw(st.lists(st.sampled_from([False, False, False, True]), min_size=nrows, max_size=nrows))
+    if kind == "ints":
+        return [int(b) for b in bits]
+    if kind == "series":
+        return pd.Series(bits, dtype=bool)
+    if kind == "short":
+        return bits[:-1]
+    if kind == "junk" and bits:
+        i = draw(st.integers(0, nrows - 1))
+        bits[i] = draw(st.sampled_from(["<", None, math.nan, 2, "TRUE", 0.5]))
+    if kind == "none":
+        return None
+    return np.array(bits, dtype=object) if kind == "junk" else np.array(bits, dtype=bool)
+
+
+@PROFILE
+@given(args=fit_args(), data=st.data())
+def test_censored_fit_on_hostile_inputs(args, data):
+    y, x, nrows, k, kw = args
+    mask = data.draw(_masks(nrows))
+    (status, f), leak = run(unbend.fit, y, x, censored=mask, **kw)
+    if status == "ok":
+        check_linefit(f, nrows, k)
+        assert 0 <= f.n_censored <= 0.8 * f.n
+        (st_p, p), leak_p = run(f.predict, [1.0, 10.0, float("nan")])
+        if st_p == "ok":
+            assert len(p) == 3 and p["note"].iloc[2] != ""
+        no_leak(leak_p, "predict (censored)")
+    no_leak(leak, "fit (censored)")
+
+
+@PROFILE
+@given(data=xy_inputs(max_rows=16), more=st.data())
+def test_censored_powers_and_scan_on_hostile_inputs(data, more):
+    y, x, nrows, k = data
+    mask = more.draw(_masks(nrows))
+    for fn, kw in ((unbend.suggest_power, {"x_power": 0.0}), (unbend.suggest_x_power, {"y_power": 0.0}),
+                   (unbend.scan, {})):
+        (status, out), leak = run(fn, y, x, censored=mask, **kw)
+        if status == "ok" and fn is not unbend.scan:
+            assert math.isfinite(out.estimate) and out.low <= out.estimate <= out.high
+        if status == "ok" and fn is unbend.scan:
+            assert len(out) == 36 and out["rank"].tolist() == list(range(1, 37))
+        no_leak(leak, fn.__name__ + " (censored)")
