@@ -116,6 +116,21 @@ class _NoMaximum(Exception):
     """The likelihood has no finite maximum (or it could not be found)."""
 
 
+class _Unbounded(_NoMaximum):
+    """The measured values lie on the line (to rounding) and the limits allow it: the likelihood rises
+    without bound as sigma shrinks. ``theta`` is where the search stopped (log sigma at the floor)."""
+
+    def __init__(self, theta):
+        super().__init__()
+        self.theta = theta
+
+
+#: log sigma (standardised units) below which the likelihood is taken as unbounded: sigma below 1.4e-11 of
+#: the spread of the data, a line exact to about 11 digits (near that floor the maximum, if any, sits at
+#: the rounding of the values and Newton's steps crawl)
+_TAU_FLOOR = -25.0
+
+
 def _maximise(prob: _Problem, theta0: np.ndarray, maxit: int = 200):
     """Newton's method with Levenberg-Marquardt damping: (theta, loglik, Hessian, iterations).
 
@@ -131,12 +146,12 @@ def _maximise(prob: _Problem, theta0: np.ndarray, maxit: int = 200):
     if not (np.isfinite(ll) and np.all(np.isfinite(g)) and np.all(np.isfinite(H))):
         raise _NoMaximum
     lam = 0.0
-    p1 = theta.size
     for it in range(1, maxit + 1):
         negH = -H
-        scale = max(float(np.max(np.abs(np.diag(negH)))), 1e-300)
+        dg = np.abs(np.diag(negH))
+        dg = np.maximum(dg, max(float(dg.max()), 1e-300) * 1e-12)  # Marquardt: damp each coordinate by its scale
         for _ in range(60):
-            M = negH + (lam * scale) * np.eye(p1) if lam else negH
+            M = negH + np.diag(lam * dg) if lam else negH
             try:
                 step = linalg.cho_solve(linalg.cho_factor(M, lower=True, check_finite=False), g,
                                         check_finite=False)
@@ -157,8 +172,8 @@ def _maximise(prob: _Problem, theta0: np.ndarray, maxit: int = 200):
         small = float(np.max(np.abs(step))) < 1e-8 and lam == 0.0  # the point just reached is then ~1e-16 off
         theta = new
         ll, g, H = out
-        if theta[-1] < -27.0:  # sigma below 2e-12 of the spread of the data: the likelihood has no top
-            raise _NoMaximum
+        if theta[-1] < _TAU_FLOOR:
+            raise _Unbounded(theta)
         lam = lam / 10.0 if lam > 1e-7 else 0.0
         if small:
             break
@@ -172,6 +187,8 @@ def _solve(prob: _Problem, warm: np.ndarray | None = None):
     if warm is not None:
         try:
             return _maximise(prob, warm)
+        except _Unbounded:
+            raise
         except _NoMaximum:
             pass
     return _maximise(prob, prob.start())
@@ -353,8 +370,8 @@ def _normality(prob, theta, fitted, single_limit, z_limit) -> Check:
     cens = prob.cens
     nu = prob.nu
     if single_limit is None or z_limit is None:
-        return Check("normality (not run: the limits differ, so each measured value's own cut-off is unknown)",
-                     np.nan, np.nan, None, 0.0)
+        return Check("normality (not run: the limits differ, or a measured value is below the limit, so the "
+                     "cut-off of each measured value is unknown)", np.nan, np.nan, None, 0.0)
     sigma = math.exp(theta[-1])
     r = (prob.zu - fitted[~cens]) / sigma
     cl = (z_limit - fitted[~cens]) / sigma
@@ -655,14 +672,13 @@ def _names(x, y, x_names, y_name, k):
 
 
 def _coef_and_cov(core: _Core):
-    """Coefficients in the units of the re-expressed x and y, their covariance (observed information,
-    unscaled) in the centred-scaled and in the original parametrisation."""
+    """Coefficients in the units of the re-expressed x and y; the inverse observed information in the
+    standardised units (``cov_s``: coefficients of the centred-scaled columns, then log sigma); the map
+    ``T`` from centred-scaled to original coefficients; the inverse information of (coef, log sigma)."""
     p = core.prob.p
-    b_s = core.theta[:p]
     cov_s = _information_inverse(core.H)
-    coef_c = b_s * core.zsc
+    coef_c = core.theta[:p] * core.zsc
     coef_c[0] += core.z0
-    cov_c = cov_s[:p, :p] * (core.zsc * core.zsc)
     T = np.zeros((p, p))
     T[0, 0] = 1.0
     if p > 1:
@@ -671,8 +687,9 @@ def _coef_and_cov(core: _Core):
     J = np.zeros((p + 1, p + 1))
     J[:p, :p] = T * core.zsc
     J[p, p] = 1.0
-    cov_info = J @ cov_s @ J.T
-    return coef_c, cov_c, T, cov_info
+    with np.errstate(all="ignore"):  # may underflow at extreme scales; the SEs below are computed without it
+        cov_info = J @ cov_s @ J.T
+    return coef_c, cov_s, T, cov_info
 
 
 def _build(core, y_t, x_t, yu, Xu, cens, limits, rows, level, warnings, names, y_name) -> CensoredFit:
@@ -680,17 +697,22 @@ def _build(core, y_t, x_t, yu, Xu, cens, limits, rows, level, warnings, names, y
     p = core.prob.p
     k = p - 1
     df = n - p
-    coef_c, cov_c, T, cov_info = _coef_and_cov(core)
+    coef_c, cov_s, T, cov_info = _coef_and_cov(core)
     infl = n / df  # the least-squares degrees-of-freedom correction
-    cov_c = cov_c * infl
+    Vs = cov_s[:p, :p] * infl  # standardised units: the covariance of coef_c is Vs * zsc^2
     coef = T @ coef_c
     se = np.empty(p)
-    se[0] = math.sqrt(max(float(T[0] @ cov_c @ T[0]), 0.0))
-    se[1:] = np.sqrt(np.clip(np.diag(cov_c)[1:], 0, None)) / core.sc
-    if not (np.all(np.isfinite(coef)) and np.all(np.isfinite(se))):
-        raise UnbendError("at this scale the slope is beyond the range of floating-point numbers; rescale y or x "
-                          "(change units) and fit again.")
-    cov = T @ cov_c @ T.T
+    Ts = T.copy()
+    if p > 1:
+        Ts[0, 1:] = -core.mu / core.sc  # row 0 in standardised units
+    # standard errors without squaring zsc or 1/sc (which under- or overflow at extreme scales)
+    se[0] = math.sqrt(max(float(Ts[0] @ Vs @ Ts[0]), 0.0)) * core.zsc
+    se[1:] = np.sqrt(np.clip(np.diag(Vs)[1:], 0, None)) * core.zsc / core.sc
+    if not (np.all(np.isfinite(coef)) and np.all(np.isfinite(se))) or np.any(se == 0):
+        raise UnbendError("at this scale the slope or its standard error is beyond the range of floating-point "
+                          "numbers; rescale y or x (change units) and fit again.")
+    with np.errstate(all="ignore"):
+        cov = (T * core.zsc) @ Vs @ (T * core.zsc).T
     sigma = math.exp(core.theta[-1]) * core.zsc
     s = sigma * math.sqrt(infl)
     with np.errstate(divide="ignore", invalid="ignore"):
@@ -730,7 +752,7 @@ def _build(core, y_t, x_t, yu, Xu, cens, limits, rows, level, warnings, names, y
     table = pd.DataFrame(cols)
 
     # _Rinv such that resid_sd * ||[1, (x - mu)/sc] _Rinv|| is the SE of the line (as LineFit stores it)
-    Lc = np.linalg.cholesky(cov_c) / s
+    Lc = np.linalg.cholesky(Vs) / (math.exp(core.theta[-1]) * math.sqrt(infl))  # zsc cancels
     method = (f"maximum likelihood, {nc} of {n} values below a limit censored (normal errors on the re-expressed "
               "scale)")
     return CensoredFit(
@@ -1020,10 +1042,24 @@ def _line_design(Xt: np.ndarray | None, cens: np.ndarray, n: int) -> np.ndarray:
 
 
 class _Profile:
-    """Shared by the two censored profiles: one maximum-likelihood fit per power, warm-started from the last."""
+    """Shared by the two censored profiles: one maximum-likelihood fit per power, warm-started from the last.
+
+    Values are kept by power, so a power asked for again gets the same number (root finders rely on it).
+    Where the measured values lie on the line to rounding and the limits allow it, the likelihood has no
+    top; it is then read at sigma = 1.4e-11 of the spread of the data, a very high but finite value, as
+    the least-squares profiles do with a residual sum of squares of zero.
+    """
 
     warm = None
     n = 0
+
+    def loglik(self, power: float) -> float:
+        memo = self.__dict__.setdefault("_memo", {})
+        key = float(power)
+        if key not in memo:
+            with np.errstate(all="ignore"):
+                memo[key] = self._loglik(key)
+        return memo[key]
 
     def _ll(self, A: np.ndarray, u: np.ndarray) -> float:
         """Maximised censored log-likelihood of ``u`` on ``A``, in the units of ``u``; -inf if there is none."""
@@ -1036,6 +1072,11 @@ class _Profile:
         prob = _Problem(A if isinstance(A, _Split) else _Split(A, self.cens), zs)
         try:
             theta, ll, _, _ = _solve(prob, self.warm)
+        except _Unbounded as e:
+            th = e.theta.copy()
+            th[-1] = _TAU_FLOOR
+            ll = prob.loglik(th)
+            return ll - prob.nu * math.log(zsc) if np.isfinite(ll) else -np.inf
         except (_NoMaximum, np.linalg.LinAlgError, ValueError):
             return -np.inf
         self.warm = theta
@@ -1065,7 +1106,7 @@ class _BoxCoxCensored(_Profile):
     def subset(self, idx: np.ndarray) -> "_BoxCoxCensored":
         return _BoxCoxCensored(self._v[idx], None if self._Xt is None else self._Xt[idx], self.cens[idx])
 
-    def loglik(self, lam: float) -> float:
+    def _loglik(self, lam: float) -> float:
         from ._likelihood import centred_power
         with np.errstate(all="ignore"):
             u = centred_power(self.d, lam)
@@ -1091,7 +1132,7 @@ class _XPowerCensored(_Profile):
     def subset(self, idx: np.ndarray) -> "_XPowerCensored":
         return _XPowerCensored(self._zt[idx], self._x[idx], self.cens[idx])
 
-    def loglik(self, alpha: float) -> float:
+    def _loglik(self, alpha: float) -> float:
         from ._likelihood import centred_power
         with np.errstate(all="ignore"):
             U = centred_power(self.D, alpha)
