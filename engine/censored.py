@@ -441,9 +441,11 @@ class CensoredFit(LineFit):
         return predict_censored(self, new_x, level=level)
 
     def explain(self) -> str:
+        """The sentences of :meth:`LineFit.explain`, then how the censored values were used and their cautions."""
         from .predicting import explain
-        return (explain(self) + f" Fitted by maximum likelihood with {self.n_censored} of {self.n} values below a "
-                "limit treated as censored (neither dropped nor replaced by a guess).")
+        cautions = [w for w in self.warnings if "below a limit" in w or "different limits" in w]
+        return " ".join([explain(self), f"Fitted by maximum likelihood with {self.n_censored} of {self.n} values "
+                         "below a limit treated as censored (neither dropped nor replaced by a guess)."] + cautions)
 
     def rows(self) -> list[tuple[str, object]]:
         """Labelled rows (label, value) summarising the censored fit, for a two-column table."""

@@ -257,6 +257,7 @@ def test_cautions_over_half_and_several_limits():
     y, x, c = _lab(n=100, seed=31, share=0.6)
     f = unbend.fit(y, x, y_power=0, x_power=0, censored=c)
     assert any("rests mostly on the limits" in w and f"{int(c.sum())} of 100" in w for w in f.warnings)
+    assert "rests mostly on the limits" in f.explain()
     y, x, c = _lab(n=100, seed=32, limits=[3.0, 6.0, 10.0])
     f = unbend.fit(y, x, y_power=0, x_power=0, censored=c)
     assert f.limits == (3.0, 6.0, 10.0) and f.lowest_limit == 3.0
