@@ -33,12 +33,14 @@ _WHERE = {
     "CAUTION": ".fitting", "LineFit": ".fitting", "fit": ".fitting",
     "Check": ".diagnostics",
     "scan": ".scan", "best_pair": ".scan",
+    "CensoredFit": ".censored", "CensoredMean": ".censored", "censored_mean": ".censored", "half_limit": ".censored",
 }
 
 __all__ = [
     "UnbendError", "DomainError", "LADDER", "EXTRA_RUNGS", "Reexpression", "express", "unexpress",
     "propose_start", "rung_label", "PowerSuggestion", "choose_rung", "suggest_power", "suggest_x_power",
     "spread_power", "symmetry_power", "LineFit", "fit", "Check", "scan", "best_pair", "CAUTION",
+    "CensoredFit", "CensoredMean", "censored_mean", "half_limit",
 ]
 
 

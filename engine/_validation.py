@@ -23,6 +23,7 @@ __all__ = [
     "Rows",
     "MIN_ROWS",
     "FEW_ROWS",
+    "as_censored",
 ]
 
 #: Fewest rows a straight line with an interval can be fitted to.
@@ -236,3 +237,41 @@ def check_power(power, name: str = "power") -> float:
     if not np.isfinite(p) or abs(p) > 100:
         raise UnbendError(f"{name} must be a number between -100 and 100; got {power!r}.")
     return p
+
+
+def as_censored(censored, n: int, name: str = "censored") -> np.ndarray | None:
+    """A new boolean array of length ``n`` (True where y is an upper limit), or None.
+
+    Accepts booleans, and the numbers 0 and 1, as a list, array or Series;
+    anything else (text, blanks, other numbers) is refused with a message,
+    since a row whose censoring is unknown cannot be used silently either way.
+    """
+    if censored is None:
+        return None
+    if isinstance(censored, (bool, np.bool_)) or np.isscalar(censored):
+        raise UnbendError(f"{name} must be one True/False per row of y (True where y is an upper limit, such as "
+                          "a value reported as '<0.5'); got a single value.")
+    if hasattr(censored, "to_numpy") and not isinstance(censored, np.ndarray):
+        censored = censored.to_numpy()
+    try:  # lists are read cell by cell (numpy would turn [False, "<"] into text throughout)
+        arr = censored if isinstance(censored, np.ndarray) else np.array(censored, dtype=object)
+    except (TypeError, ValueError):
+        raise UnbendError(f"{name} could not be read; give a column of True/False, one per row of y.") from None
+    if arr.ndim == 2 and 1 in arr.shape:
+        arr = arr.reshape(-1)
+    if arr.ndim != 1:
+        raise UnbendError(f"{name} must be one column of True/False; got a block of shape {arr.shape}.")
+    if arr.size != n:
+        raise UnbendError(f"y has {n} rows but {name} has {arr.size}; give one True/False per row of y.")
+    if arr.dtype.kind == "b":
+        return arr.astype(bool)  # a copy
+    out = np.zeros(n, dtype=bool)
+    for i, v in enumerate(arr.tolist()):
+        if isinstance(v, np.generic):
+            v = v.item()
+        if isinstance(v, bool) or (isinstance(v, (int, float)) and v in (0, 1)):
+            out[i] = bool(v)
+        else:
+            raise UnbendError(f"{name} row {i + 1} is {v!r}; each row must be True (y is an upper limit) or False "
+                              "(y is measured), or 1/0.")
+    return out

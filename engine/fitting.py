@@ -97,6 +97,11 @@ class LineFit:
         return len(self.skipped)
 
     @property
+    def n_censored(self) -> int:
+        """Values below a limit (0: a least-squares fit; see :class:`unbend.censored.CensoredFit`)."""
+        return 0
+
+    @property
     def names(self) -> tuple:
         return ("intercept",) + tuple(f"slope {nm}" for nm in self.x_names)
 
@@ -227,7 +232,7 @@ def _design(Xt: np.ndarray):
 
 
 def fit(y, x, *, y_power=1.0, x_power=1.0, y_start=0.0, x_start=0.0, level=0.95,
-        log10=False, y_family="ladder", x_names=None, y_name=None) -> LineFit:
+        log10=False, y_family="ladder", x_names=None, y_name=None, censored=None) -> LineFit:
     """Fit the straight line of re-expressed y on re-expressed x by least squares.
 
     Parameters
@@ -249,6 +254,12 @@ def fit(y, x, *, y_power=1.0, x_power=1.0, y_start=0.0, x_start=0.0, level=0.95,
         Names of the x columns (default: the DataFrame's column names, or x, x1, x2 ...).
     y_name : str, optional
         Name of y in sentences (default: the Series name, or y).
+    censored : array_like of bool, optional
+        True where y is an upper limit (a value reported as below it, such as
+        "<0.5": y holds 0.5). With any True the line is fitted by maximum
+        likelihood with those values censored and a
+        :class:`unbend.censored.CensoredFit` is returned; with None or all
+        False the result is the least-squares fit.
 
     Returns
     -------
@@ -278,6 +289,12 @@ def fit(y, x, *, y_power=1.0, x_power=1.0, y_start=0.0, x_start=0.0, level=0.95,
     >>> round(float(f.coef[1]), 6)
     0.5
     """
+    if censored is not None:
+        from ._validation import as_censored
+        if as_censored(censored, as_vector(y, "y").size).any():
+            from .censored import fit_censored
+            return fit_censored(y, x, censored, y_power=y_power, x_power=x_power, y_start=y_start, x_start=x_start,
+                                level=level, log10=log10, y_family=y_family, x_names=x_names, y_name=y_name)
     with np.errstate(all="ignore"):  # every overflow ends in a check below and a plain message
         return _fit(y, x, y_power, x_power, y_start, x_start, level, log10, y_family, x_names, y_name)
 

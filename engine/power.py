@@ -50,6 +50,7 @@ class PowerSuggestion:
     skipped: int = 0
     loglik: float = float("nan")
     detail: pd.DataFrame | None = field(default=None, compare=False, repr=False)
+    n_censored: int = 0
 
     def rows(self) -> list[tuple[str, object]]:
         """Labelled rows (label, value) for a two-column table."""
@@ -65,7 +66,7 @@ class PowerSuggestion:
             ("rows used", self.n),
             ("rows skipped", self.skipped),
             ("note", self.note),
-        ]
+        ] + ([("values below a limit (censored)", self.n_censored)] if self.n_censored else [])
 
 
 def choose_rung(estimate: float, low: float, high: float, rungs=None, *, what: str = "y"):
@@ -143,6 +144,14 @@ def _suggestion(est, lo, hi, *, level, what, method, n, skipped, loglik, rungs, 
                            detail=detail)
 
 
+def _any_censored(y, censored) -> bool:
+    """True when a censoring mask is given and marks at least one row (checked against y's length)."""
+    if censored is None:
+        return False
+    from ._validation import as_censored
+    return bool(as_censored(censored, as_vector(y, "y").size).any())
+
+
 def _prepare(y, x, y_name="y", x_name="x"):
     yv = as_vector(y, y_name)
     X = None if x is None else as_matrix(x, x_name)
@@ -154,7 +163,7 @@ def _prepare(y, x, y_name="y", x_name="x"):
 
 
 def suggest_power(y, x=None, *, level=0.95, y_start=0.0, x_power=1.0, x_start=0.0,
-                  family="ladder", rungs=None) -> PowerSuggestion:
+                  family="ladder", rungs=None, censored=None) -> PowerSuggestion:
     """Suggest a power for y: the Box–Cox profile likelihood of the line of y on x.
 
     Parameters
@@ -175,6 +184,9 @@ def suggest_power(y, x=None, *, level=0.95, y_start=0.0, x_power=1.0, x_start=0.
         'yeo-johnson' allows y of either sign.
     rungs : sequence of float, optional
         Rungs to choose from (default the six of the ladder).
+    censored : array_like of bool, optional
+        True where y is an upper limit (reported as below it); with any True
+        the profile uses the censored likelihood (see :mod:`unbend.censored`).
 
     Returns
     -------
@@ -206,6 +218,10 @@ def suggest_power(y, x=None, *, level=0.95, y_start=0.0, x_power=1.0, x_start=0.
     >>> unbend.suggest_power(y, x).label
     'log'
     """
+    if _any_censored(y, censored):
+        from .censored import suggest_power_censored
+        return suggest_power_censored(y, x, censored, level=level, y_start=y_start, x_power=x_power,
+                                      x_start=x_start, family=family, rungs=rungs)
     level = check_level(level)
     rungs = _rungs(rungs)
     yu, Xu, rows = _prepare(y, x)
@@ -232,13 +248,15 @@ def suggest_power(y, x=None, *, level=0.95, y_start=0.0, x_power=1.0, x_start=0.
 
 
 def suggest_x_power(y, x, *, level=0.95, y_power=1.0, y_start=0.0, x_start=0.0,
-                    rungs=None) -> PowerSuggestion:
+                    rungs=None, censored=None) -> PowerSuggestion:
     """Suggest a power for x: the profile likelihood of the line over the x power.
 
     With y fixed at ``y_power``, the line of re-expressed y on ``x**alpha``
     is fitted for each alpha; the estimate maximises
     ``-n/2 log(RSS(alpha)/n)`` and the interval is the likelihood-ratio
     interval at ``level``. With several x columns they share one power.
+    ``censored`` (True where y is an upper limit) switches to the censored
+    likelihood (see :mod:`unbend.censored`).
 
     Returns
     -------
@@ -267,6 +285,10 @@ def suggest_x_power(y, x, *, level=0.95, y_power=1.0, y_start=0.0, x_start=0.0,
     rungs = _rungs(rungs)
     if x is None:
         raise UnbendError("suggest_x_power needs x: give the x column (or block) as the second argument.")
+    if _any_censored(y, censored):
+        from .censored import suggest_x_power_censored
+        return suggest_x_power_censored(y, x, censored, level=level, y_power=y_power, y_start=y_start,
+                                        x_start=x_start, rungs=rungs)
     yu, Xu, rows = _prepare(y, x)
     t_y = Reexpression(y_power, y_start)
     t_y.check(yu, "y")

@@ -33,7 +33,7 @@ def _no_likelihood(ty, yu, rss) -> str:
     return no_likelihood_words(has_zero, not rss > 0, hint, ty.start)
 
 
-def scan(y, x, *, y_start=0.0, x_start=0.0, rungs=None, x_rungs=None) -> pd.DataFrame:
+def scan(y, x, *, y_start=0.0, x_start=0.0, rungs=None, x_rungs=None, censored=None) -> pd.DataFrame:
     """Fit the line for every pair of rungs and rank them, best first.
 
     Parameters
@@ -47,6 +47,11 @@ def scan(y, x, *, y_start=0.0, x_start=0.0, rungs=None, x_rungs=None) -> pd.Data
         the six of the ladder).
     x_rungs : sequence of float, optional
         Rungs to try for x.
+    censored : array_like of bool, optional
+        True where y is an upper limit; with any True every pair is fitted by
+        maximum likelihood with those values censored (R² blank; checks as in
+        :func:`unbend.censored.fit_censored`), and ``attrs["n_censored"]`` and
+        ``attrs["warnings"]`` say how many and what that means.
 
     Returns
     -------
@@ -98,8 +103,17 @@ def scan(y, x, *, y_start=0.0, x_start=0.0, rungs=None, x_rungs=None) -> pd.Data
     x_start = check_number(x_start, "x_start")
     y_rungs = _rungs(rungs)
     x_rungs = _rungs(x_rungs) if x_rungs is not None else y_rungs
+    cens = None
+    if censored is not None:
+        from ._validation import as_censored
+        cens = as_censored(censored, yv.size)[rows.used]
+        cens = cens if cens.any() else None
     with np.errstate(all="ignore"):  # overflow at extreme powers becomes "not possible", never a crash
-        if Xu.shape[1] == 1:
+        if cens is not None:
+            from .censored import censoring_cautions, scan_censored, _limits
+            cautions = censoring_cautions(yu.size, int(cens.sum()), _limits(yu, cens))
+            out = scan_censored(yu, Xu, cens, y_rungs, x_rungs, y_start, x_start)
+        elif Xu.shape[1] == 1:
             out = _scan_one_x(yu, Xu[:, 0], y_rungs, x_rungs, y_start, x_start)
         else:
             out = _scan_general(yu, Xu, y_rungs, x_rungs, y_start, x_start)
@@ -115,6 +129,9 @@ def scan(y, x, *, y_start=0.0, x_start=0.0, rungs=None, x_rungs=None) -> pd.Data
     t["loglik"] = t["loglik"].where(np.isfinite(t["loglik"]), np.nan)
     if rows.skipped:
         t.attrs["skipped"] = rows.skipped
+    if cens is not None:
+        t.attrs["n_censored"] = int(cens.sum())
+        t.attrs["warnings"] = tuple(cautions)
     return t[COLUMNS]
 
 
@@ -283,13 +300,15 @@ def _domain(t: Reexpression, v: np.ndarray, name: str) -> str:
     return ""
 
 
-def best_pair(y, x, *, y_start=0.0, x_start=0.0, rungs=None, y_power=None, x_power=None, table=None):
+def best_pair(y, x, *, y_start=0.0, x_start=0.0, rungs=None, y_power=None, x_power=None, table=None,
+              censored=None):
     """The pair of rungs to use when the user has not pinned them.
 
     With neither power given, the pair the scan ranks first. With one of
     them pinned, the best-ranked scan row that has the pinned power.
 
-    ``table`` may be a scan already made of the same data and starts.
+    ``table`` may be a scan already made of the same data and starts;
+    ``censored`` is passed to :func:`scan`.
 
     Returns
     -------
@@ -300,7 +319,8 @@ def best_pair(y, x, *, y_start=0.0, x_start=0.0, rungs=None, y_power=None, x_pow
     base = _rungs(rungs)
     y_r = base + ((y_power,) if y_power is not None and y_power not in base else ())
     x_r = base + ((x_power,) if x_power is not None and x_power not in base else ())
-    t = table if table is not None else scan(y, x, y_start=y_start, x_start=x_start, rungs=y_r, x_rungs=x_r)
+    t = table if table is not None else scan(y, x, y_start=y_start, x_start=x_start, rungs=y_r, x_rungs=x_r,
+                                             censored=censored)
     pinned = np.ones(len(t), dtype=bool)
     if y_power is not None:
         pinned &= (t["y_power"] == y_power).to_numpy()
