@@ -153,17 +153,18 @@ def fieller(reading, *, intercept, slope, resid_sd, n, x_mean, sxx, t, replicate
     """
     with np.errstate(all="ignore"):  # a flat line or overflow ends in non-finite values the caller words
         z = np.atleast_1d(np.asarray(reading, dtype=float))
-        q = 1.0 / np.asarray(replicates, dtype=float) + 1.0 / float(n)
-        root = np.sqrt(float(sxx))
-        bsx = float(slope) * root                      # slope per standardised x unit
-        d = (z - (float(intercept) + float(slope) * float(x_mean))) / bsx  # estimate, standardised
-        w = float(t) * float(resid_sd) / abs(bsx)      # so that g = w**2
-        g = np.broadcast_to(np.asarray(w * w, dtype=float), z.shape).copy()
-        estimate = float(x_mean) + d * root
+        a, b, s, xm = (np.asarray(v, dtype=float) for v in (intercept, slope, resid_sd, x_mean))
+        q = 1.0 / np.asarray(replicates, dtype=float) + 1.0 / np.asarray(n, dtype=float)
+        root = np.sqrt(np.asarray(sxx, dtype=float))
+        bsx = b * root                                 # slope per standardised x unit
+        d = (z - (a + b * xm)) / bsx                   # the estimate, standardised
+        w = np.asarray(t, dtype=float) * s / np.abs(bsx)  # so that g = w**2
+        g = np.broadcast_to(w * w, z.shape).astype(float)
+        estimate = xm + d * root
         disc = d * d + (1.0 - g) * q
         half = w * np.sqrt(np.maximum(disc, 0.0))
-        e1 = float(x_mean) + root * (d - half) / (1.0 - g)
-        e2 = float(x_mean) + root * (d + half) / (1.0 - g)
+        e1 = xm + root * (d - half) / (1.0 - g)
+        e2 = xm + root * (d + half) / (1.0 - g)
         lo, hi = np.fmin(e1, e2), np.fmax(e1, e2)
     closed = g < 1.0
     ok = np.isfinite(z) & np.isfinite(d)
@@ -203,7 +204,7 @@ def _domain(expr) -> tuple[float, float, bool]:
 
 
 def _check_replicates(replicates) -> int:
-    if isinstance(replicates, (bool, np.bool_)):
+    if isinstance(replicates, (bool, np.bool_, str, bytes)):
         raise UnbendError(f"replicates must be a whole number of readings, 1 or more; got {replicates!r}.")
     try:
         r = float(replicates)
@@ -224,7 +225,7 @@ def _ndim(values) -> int:
         return 2
 
 
-def samples(new_y, replicates: int = 1) -> np.ndarray:
+def samples(new_y, replicates: int = 1, name: str = "new_y") -> np.ndarray:
     """Readings as a block: one row per sample, one column per reading (NaN where not a number).
 
     How the two ways of giving readings are told apart (nothing is guessed):
@@ -239,23 +240,23 @@ def samples(new_y, replicates: int = 1) -> np.ndarray:
     """
     m = _check_replicates(replicates)
     if _ndim(new_y) >= 2:
-        M = as_matrix(new_y, "new_y")
+        M = as_matrix(new_y, name)
         if M.shape[1] == 1:
             col = M[:, 0]
         else:
             if m != M.shape[1]:
                 raise UnbendError(
-                    f"new_y is a block of {M.shape[0]} row(s) x {M.shape[1]} columns, read as one sample per row "
+                    f"{name} is a block of {M.shape[0]} row(s) x {M.shape[1]} columns, read as one sample per row "
                     f"and one reading per column; set replicates={M.shape[1]} (got {m}), or give one column "
                     "with one reading per sample.")
             return M
     else:
-        col = as_vector(new_y, "new_y")
+        col = as_vector(new_y, name)
     if m == 1:
         return col[:, None]
     if col.size != m:
         raise UnbendError(
-            f"replicates={m} but new_y holds {col.size} reading(s): give exactly {m} readings of one sample, or a "
+            f"replicates={m} but {name} holds {col.size} reading(s): give exactly {m} readings of one sample, or a "
             f"block with one row per sample and {m} columns (one reading per column).")
     return col[None, :]
 
@@ -275,16 +276,19 @@ def _g(v: float) -> str:
 
 # ----------------------------------------------------------------------------- inverse
 
-def inverse_columns(fit, new_y, level: float = 0.95, replicates: int = 1) -> dict:
-    """The columns of :func:`inverse` as a dict of arrays, without building a DataFrame (for speed)."""
+def inverse_columns(fit, new_y, level: float = 0.95, replicates: int = 1, *, name: str = "new_y") -> dict:
+    """The columns of :func:`inverse` as a dict of arrays, without building a DataFrame (for speed).
+
+    ``name`` is what the readings are called in messages.
+    """
     with np.errstate(all="ignore"):  # unreachable values end in inf or NaN and a note, never a warning
-        return _inverse_columns(fit, new_y, level, replicates)
+        return _inverse_columns(fit, new_y, level, replicates, name)
 
 
-def _inverse_columns(fit, new_y, level, replicates):
+def _inverse_columns(fit, new_y, level, replicates, name):
     line = _line(fit)
     level = check_level(level)
-    R = samples(new_y, replicates)
+    R = samples(new_y, replicates, name)
     k, m = R.shape
     Z = fit.y_expr.apply(R)
     is_num = np.isfinite(R)
@@ -426,7 +430,7 @@ def inverse(fit, new_y, level: float = 0.95, replicates: int = 1) -> pd.DataFram
     >>> import numpy as np, unbend
     >>> x = np.repeat([1.0, 2, 5, 10, 20, 50], 2)
     >>> y = 3.0 * x ** 0.8 * np.exp(np.random.default_rng(2).normal(0, 0.03, x.size))
-    >>> r = unbend.fit(y, x, y_power=0, x_power=0).inverse([10.0, 60.0])
+    >>> r = unbend.fit(y, x, y_power=0, x_power=0).inverse([10.0, 200.0])
     >>> bool(r["low"].iloc[0] < r["x"].iloc[0] < r["high"].iloc[0])
     True
     >>> bool(r["outside_range"].iloc[1])

@@ -34,3 +34,20 @@ SCAN_HELP = ("Ranked on the log-likelihood in the units of y (comparable across 
 def prediction_headers(level: float) -> dict:
     pct = f"{level * 100:g}%"
     return {k: v.format(pct=pct) for k, v in PREDICTION_HEADERS.items()}
+
+
+#: Columns of x read back from measured y: engine name -> header ({pct} is the level, e.g. 95%).
+INVERSE_HEADERS = {
+    "y": "measured y",
+    "readings": "readings used",
+    "x": "x (estimate)",
+    "low": "low: x, {pct}",
+    "high": "high: x, {pct}",
+    "outside_range": "outside the standards' x range",
+    "note": "note",
+}
+
+
+def inverse_headers(level: float) -> dict:
+    pct = f"{level * 100:g}%"
+    return {k: v.format(pct=pct) for k, v in INVERSE_HEADERS.items()}
