@@ -151,28 +151,44 @@ def fieller(reading, *, intercept, slope, resid_sd, n, x_mean, sxx, t, replicate
     >>> bool(e.low[0] < 2.0 < e.high[0])
     True
     """
+    with np.errstate(all="ignore"):
+        root = np.sqrt(np.asarray(sxx, dtype=float))
+    return _fieller(reading, intercept, slope, resid_sd, n, x_mean, root, t, replicates)
+
+
+def _fieller(reading, intercept, slope, resid_sd, n, x_mean, root, t, replicates) -> FiellerEnds:
+    """:func:`fieller` given the square root of sxx (which a fit knows without squaring: no underflow)."""
     with np.errstate(all="ignore"):  # a flat line or overflow ends in non-finite values the caller words
         z = np.atleast_1d(np.asarray(reading, dtype=float))
         a, b, s, xm = (np.asarray(v, dtype=float) for v in (intercept, slope, resid_sd, x_mean))
         q = 1.0 / np.asarray(replicates, dtype=float) + 1.0 / np.asarray(n, dtype=float)
-        root = np.sqrt(np.asarray(sxx, dtype=float))
+        root = np.asarray(root, dtype=float)
         bsx = b * root                                 # slope per standardised x unit
         d = (z - (a + b * xm)) / bsx                   # the estimate, standardised
         w = np.asarray(t, dtype=float) * s / np.abs(bsx)  # so that g = w**2
         g = np.broadcast_to(w * w, z.shape).astype(float)
         estimate = xm + d * root
-        disc = d * d + (1.0 - g) * q
-        half = w * np.sqrt(np.maximum(disc, 0.0))
-        e1 = xm + root * (d - half) / (1.0 - g)
-        e2 = xm + root * (d + half) / (1.0 - g)
+        # sqrt(d**2 + (1 - g)(1/m + 1/n)) without squaring d (no overflow far from the standards)
+        c = (1.0 - g) * q
+        rc = np.sqrt(np.abs(c))
+        ad = np.abs(d)
+        disc_pos = (c >= 0) | (ad > rc)
+        sq = np.where(c >= 0, np.hypot(d, rc), np.sqrt(np.maximum(ad - rc, 0.0)) * np.sqrt(ad + rc))
+        half = w * sq
+        e1 = xm + root * ((d - half) / (1.0 - g))
+        e2 = xm + root * ((d + half) / (1.0 - g))
         lo, hi = np.fmin(e1, e2), np.fmax(e1, e2)
     closed = g < 1.0
     ok = np.isfinite(z) & np.isfinite(d)
+    # the estimate always belongs to the set; rounding must not leave it a hair outside
+    fin = closed & np.isfinite(estimate)
+    lo = np.where(fin, np.fmin(lo, estimate), lo)
+    hi = np.where(fin, np.fmax(hi, estimate), hi)
     low = np.where(closed, lo, -np.inf)
     high = np.where(closed, hi, np.inf)
     low[~ok] = np.nan
     high[~ok] = np.nan
-    gap = ~closed & ok & (disc > 0) & np.isfinite(lo) & np.isfinite(hi)
+    gap = ~closed & ok & disc_pos & np.isfinite(lo) & np.isfinite(hi)
     gap_low = np.where(gap, lo, np.nan)
     gap_high = np.where(gap, hi, np.nan)
     return FiellerEnds(estimate=np.where(ok, estimate, np.nan), low=low, high=high, g=g,
@@ -187,10 +203,8 @@ def _line(fit):
         raise UnbendError(f"reading x back from y needs a line with one x; this fit has {len(fit.x_names)} x columns "
                           f"({', '.join(fit.x_names)}). Fit y on the one x you want to read back.")
     mu, sc = float(fit._mu[0]), float(fit._sc[0])
-    with np.errstate(over="ignore"):
-        sxx = fit.n * sc * sc
     return dict(intercept=float(fit.coef[0]), slope=float(fit.coef[1]), resid_sd=float(fit.resid_sd), n=fit.n,
-                x_mean=mu, sxx=sxx)
+                x_mean=mu, root=np.sqrt(fit.n) * sc)  # root = sqrt(sxx), never squared (no underflow)
 
 
 def _domain(expr) -> tuple[float, float, bool]:
@@ -297,7 +311,7 @@ def _inverse_columns(fit, new_y, level, replicates, name):
     usable = (count > 0) & ~bad_re
     zbar = np.where(usable, np.where(is_num, Z, 0.0).sum(axis=1) / np.maximum(count, 1), np.nan)
     tq = _t(0.5 + level / 2, fit.df_resid)
-    e = fieller(zbar, t=tq, replicates=np.maximum(count, 1), **line)
+    e = _fieller(zbar, t=tq, replicates=np.maximum(count, 1), **line)
     dlo, dhi, dhi_open = _domain(fit.x_expr)
     inv = fit.x_expr.invert
     closed = e.g < 1.0
@@ -325,11 +339,14 @@ def _inverse_columns(fit, new_y, level, replicates, name):
     high_cut = (hi >= dhi) if dhi_open else (hi > dhi)       # past the largest re-expressed x (x without end)
     low = np.where(np.maximum(lo, dlo) == -np.inf, -np.inf, inv(np.maximum(lo, dlo)))
     high = np.where(high_cut | (hi == np.inf), np.inf, inv(hi))
-    high[np.isnan(high) & ~np.isnan(hi)] = np.inf            # overflow taking an end back: no finite end
     low[~usable | empty] = np.nan
     high[~usable | empty] = np.nan
-    open_low = low == -np.inf
-    open_high = high == np.inf
+    # in a closed interval every end is finite unless x grows without end (a negative power) or the
+    # numbers overflow (a reading extremely far from the standards): the latter is said in words
+    live = usable & ~empty & closed
+    overflow = live & (~np.isfinite(low) | (~np.isfinite(high) & ~high_cut))
+    low[overflow & ~np.isfinite(low)] = np.nan
+    high[overflow & ~np.isfinite(high) & ~high_cut] = np.nan
 
     # notes, in words
     notes = np.full(k, "", dtype=object)
@@ -352,7 +369,11 @@ def _inverse_columns(fit, new_y, level, replicates, name):
           "is no estimate")
     _join(notes, usable & np.isfinite(est) & above,
           f"the line levels off before this reading ({xlab} of x), so no finite x gives it and there is no estimate")
-    _join(notes, usable & ~np.isfinite(est), "the line is flat, so no x gives this reading")
+    flat = fit.coef[1] == 0.0
+    _join(notes, usable & ~np.isfinite(est),
+          "the line is flat, so no x gives this reading" if flat else
+          "the estimate is beyond the range of floating-point numbers (the reading is extremely far from the "
+          "standards)")
     weak = usable & ~closed & np.isfinite(est)
     if weak.any():
         t_slope = abs(float(fit.tvalues[1]))
@@ -367,10 +388,8 @@ def _inverse_columns(fit, new_y, level, replicates, name):
     _join(notes, usable & closed & empty, f"no x that {xlab} of x allows is consistent with this reading")
     _join(notes, usable & closed & ~empty & low_edge & np.isfinite(dlo),
           f"the interval reaches down to x = {_g(edge)}, the smallest x that {xlab} of x allows")
-    _join(notes, usable & closed & ~empty & open_high,
-          "the interval has no upper end: the band does not close as x grows")
-    _join(notes, usable & closed & ~empty & open_low & ~low_edge,
-          "the interval has no lower end")
+    _join(notes, live & high_cut, "the interval has no upper end: the band does not close as x grows")
+    _join(notes, overflow, "an end of the interval is beyond the range of floating-point numbers")
     if fit.n < FEW_ROWS:
         _join(notes, np.ones(k, bool), f"only {fit.n} rows were used: treat with caution")
 
@@ -609,8 +628,8 @@ def _limits(fit, level, replicates):
     line = _line(fit)
     level = check_level(level)
     m = _check_replicates(replicates)
-    a, b, s, n = line["intercept"], line["slope"], line["resid_sd"], line["n"]
-    mu, sxx = line["x_mean"], line["sxx"]
+    a, b, s = (np.float64(line[k]) for k in ("intercept", "slope", "resid_sd"))
+    n, mu, root = line["n"], np.float64(line["x_mean"]), np.float64(line["root"])
     t1 = _t(level, fit.df_resid)
     xlab, ylab = fit.x_expr.label, fit.y_expr.label
     dlo, dhi, dhi_open = _domain(fit.x_expr)
@@ -619,7 +638,7 @@ def _limits(fit, level, replicates):
     vals = dict.fromkeys(_LIMIT_FIELDS, np.nan)
     notes = []
 
-    u0 = float(fit.x_expr.apply(np.array([0.0]))[0])
+    u0 = np.float64(fit.x_expr.apply(np.array([0.0]))[0])
     if not np.isfinite(u0):
         reason = (f"the blank (x = 0) cannot be re-expressed as {xlab} of x (a log or a negative power never "
                   "reaches x = 0); refit with an x start so that x = 0 has a place on the scale, or with x at a "
@@ -627,7 +646,7 @@ def _limits(fit, level, replicates):
         for name in _LIMIT_FIELDS:
             why[name] = reason
     else:
-        h0 = np.sqrt(1.0 / m + 1.0 / n + (u0 - mu) ** 2 / sxx)
+        h0 = np.sqrt(1.0 / m + 1.0 / n + ((u0 - mu) / root) ** 2)
         sg = 1.0 if b > 0 else -1.0
         z0 = a + b * u0
         zc = z0 + sg * t1 * s * h0
@@ -643,14 +662,20 @@ def _limits(fit, level, replicates):
                 return np.nan
             return v
 
-        vals["critical_x"] = back(u0 + t1 * s * h0 / abs(b), "critical_x")
-        e = fieller(zc, t=t1, replicates=m, **line)
-        if e.g[0] >= 1.0:
+        uc = u0 + t1 * s * h0 / abs(b)
+        vals["critical_x"] = back(uc, "critical_x")
+        # detection: the far end of Fieller's interval for the reading z_C (one-sided t), written as a
+        # step beyond u_C so that nothing is lost to rounding when the step is tiny
+        w = t1 * s / abs(b * root)
+        g = w * w
+        if not g < 1.0:
             why["detection_x"] = (f"the slope is not significant at the one-sided {level * 100:g}% level (its t is "
                                   f"{abs(float(fit.tvalues[1])):.3g}, below the {t1:.3g} needed), so the band never "
                                   "separates from the blank")
         else:
-            vals["detection_x"] = back(float(e.high[0]), "detection_x")
+            d = (uc - mu) / root
+            half = w * np.hypot(d, np.sqrt((1.0 - g) * (1.0 / m + 1.0 / n)))
+            vals["detection_x"] = back(uc + root * (half + d * g) / (1.0 - g), "detection_x")
         vals["quantification_x"] = back(u0 + CURRIE_QUANTIFICATION * s * h0 / abs(b), "quantification_x")
         vals["ich_detection_x"] = back(u0 + ICH_DETECTION * s / abs(b), "ich_detection_x")
         vals["ich_quantification_x"] = back(u0 + ICH_QUANTIFICATION * s / abs(b), "ich_quantification_x")
@@ -672,6 +697,6 @@ def _limits(fit, level, replicates):
                      "line at x = 0, and readings are compared with the critical level in y units.")
     if fit.n < FEW_ROWS:
         notes.append(f"Only {fit.n} rows were used: the limits are rough.")
-    return CalibrationLimits(level=level, replicates=m, resid_sd=s, slope=b, slope_t=float(fit.tvalues[1]),
+    return CalibrationLimits(level=level, replicates=m, resid_sd=float(s), slope=float(b), slope_t=float(fit.tvalues[1]),
                              y_label=ylab, x_label=xlab, n=fit.n, n_skipped=fit.n_skipped, notes=tuple(notes),
                              why=why, **vals)

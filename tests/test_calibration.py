@@ -489,3 +489,100 @@ def test_limits_note_extrapolation_to_the_blank():
     y, x = _calibration(seed=2)  # lowest standard is 1
     lim = unbend.fit(y, x, y_power=0.5, x_power=0.5).detection_limits()
     assert any("x = 0 lies below the lowest standard (1)" in nt for nt in lim.notes)
+
+
+# ------------------------------------------------------------------------ hostile inputs
+# The engine fuzz helpers (hypothesis profiles, hostile cells, the no-change and no-warning checks);
+# only helpers are imported, so no test is collected twice. Generated data prove properties only.
+from hypothesis import example, given  # noqa: E402
+from hypothesis import strategies as st  # noqa: E402
+from test_engine_fuzz import (PROFILE, UNUSUAL, USUAL, _make_fit, fit_args, hostile_cell, mostly,  # noqa: E402
+                              new_points, no_leak, numeric_cell, run)
+
+INVERSE_COLUMNS = ["y", "readings", "x", "low", "high", "outside_range", "note"]
+# cases the random profile found, kept so that the quick run tries them every time
+_X8 = [32.02960352241199, 13.85444233131158, 2.528189434841637, 1.31811795866219, 40.75687684041348,
+       45.68140107524722, 30.528470900475405, 36.61007976870792]
+_TINY_Y = ([7.104533695751568e-300, 2.5590544181709402e-300, 1.6516166221243137e-300, 1.7756580627582576e-300,
+            7.94734322351931e-300, 1.5491813466960275e-299, 5.913520595952857e-300, 8.882211044376695e-300], _X8, 8, 1,
+           {"y_power": 2.0, "x_power": 2.0, "level": 0.95, "log10": False, "y_family": "yeo-johnson"})
+_EXACT_ROOT = ([2.0 * np.sqrt(v) for v in _X8], _X8, 8, 1,
+               {"y_power": 1.0, "x_power": 0.5, "level": 0.95, "log10": False, "y_family": "ladder"})
+_UNDERFLOW_X = ([7.104533695751568, 2.5590544181709403, 1.6516166221243138, 1.7756580627582577, 7.94734322351931,
+                 15.491813466960275, 5.913520595952857, 8.882211044376694], [v * 1e-150 for v in _X8], 8, 1,
+                {"y_power": 2.0, "x_power": 2.0, "level": 0.95, "log10": False, "y_family": "ladder"})
+replicates_arg = st.one_of(st.sampled_from([1, 1, 1, 2, 3]), st.sampled_from([0, -1, 2.5, True, "3", None, 1e9]))
+
+
+@st.composite
+def measured(draw):
+    """Readings in any of the accepted forms, or a form that must be refused in words."""
+    if draw(st.booleans()):
+        return draw(new_points(1))[0]
+    cells = st.one_of(numeric_cell, hostile_cell, st.floats(min_value=0.1, max_value=100))
+    width = draw(st.integers(min_value=1, max_value=4))
+    rows = draw(st.lists(st.lists(cells, min_size=width, max_size=width), min_size=0, max_size=5))
+    return np.array(rows, dtype=object) if draw(st.booleans()) and rows else rows
+
+
+@PROFILE
+@example(args=_TINY_Y, new_y=[1.0], level=1e-9, replicates=1)
+@example(args=_TINY_Y, new_y=[1.0, 1e-299], level=0.95, replicates=1)
+@given(args=fit_args(unusual=False), new_y=measured(), level=mostly(USUAL["level"], UNUSUAL["level"]),
+       replicates=replicates_arg)
+def test_inverse_on_hostile_input(args, new_y, level, replicates):
+    f = _make_fit(args)
+    if f is None:
+        return
+    (status, r), leak = run(f.inverse, new_y, level=level, replicates=replicates)
+    if status == "ok":
+        assert len(f.x_names) == 1
+        assert list(r.columns) == INVERSE_COLUMNS and r["outside_range"].dtype == bool
+        for i in range(len(r)):
+            x, lo, hi, note = r["x"].iloc[i], r["low"].iloc[i], r["high"].iloc[i], r["note"].iloc[i]
+            assert isinstance(note, str)
+            if np.isnan(x):
+                assert note, "a sample without an estimate must say why"
+            elif not (np.isnan(lo) or np.isnan(hi)):
+                assert lo <= x <= hi, (lo, x, hi)
+            if np.isinf(lo) or np.isinf(hi) or (np.isnan(lo) and r["readings"].iloc[i] > 0):
+                assert note, "an open or missing end must be said in words"
+    no_leak(leak, "LineFit.inverse")
+
+
+@PROFILE
+@example(args=_EXACT_ROOT, level=0.95, replicates=1)
+@example(args=_UNDERFLOW_X, level=0.95, replicates=1)
+@given(args=fit_args(unusual=False), level=mostly(USUAL["level"], UNUSUAL["level"]), replicates=replicates_arg)
+def test_detection_limits_on_hostile_input(args, level, replicates):
+    f = _make_fit(args)
+    if f is None:
+        return
+    (status, lim), leak = run(f.detection_limits, level=level, replicates=replicates)
+    if status == "ok":
+        for name in ("blank_y", "critical_y", "critical_x", "detection_x", "quantification_x",
+                     "ich_detection_x", "ich_quantification_x"):
+            v = getattr(lim, name)
+            assert np.isfinite(v) or (np.isnan(v) and lim.why.get(name)), (name, v)
+        if np.isfinite(lim.critical_x) and np.isfinite(lim.detection_x):
+            assert lim.critical_x <= lim.detection_x
+        for label, value, definition in lim.rows():
+            assert isinstance(label, str) and isinstance(definition, str) and "\n" not in definition
+    no_leak(leak, "LineFit.detection_limits")
+
+
+finite_or_odd = st.one_of(st.floats(min_value=-1e6, max_value=1e6), st.sampled_from([0.0, 1e308, -1e308, 1e-308,
+                                                                                      np.nan, np.inf]))
+
+
+@PROFILE
+@given(reading=st.lists(finite_or_odd, max_size=5), a=finite_or_odd, b=finite_or_odd, s=finite_or_odd,
+       sxx=finite_or_odd, n=st.integers(min_value=3, max_value=10**6), m=st.integers(min_value=1, max_value=50))
+def test_fieller_never_warns(reading, a, b, s, sxx, n, m):
+    (status, e), leak = run(fieller, reading, intercept=a, slope=b, resid_sd=abs(s), n=n, x_mean=1.0,
+                            sxx=abs(sxx), t=2.0, replicates=m)
+    assert status == "ok"
+    assert e.estimate.shape == e.low.shape == e.high.shape == (len(reading),)
+    closed = (e.g < 1) & np.isfinite(e.low)
+    assert np.all(e.low[closed] <= e.high[closed])
+    no_leak(leak, "fieller")
