@@ -352,7 +352,7 @@ def UNBEND_INVERSE(y, x, measured_y, y_power=None, x_power=None, what=None, leve
     body_cols = [columns[0], np.asarray(r["readings"]).tolist(), columns[1], columns[2], columns[3],
                  np.where(r["outside_range"], "yes", "no").tolist(), r["note"],
                  [f.y_power] * k, [f.x_power] * k, [f.n] * k, [f.n_skipped] * k]
-    return cells.table(header, list(zip(*body_cols)))
+    return cells.table(header, zip(*body_cols))  # rows made one at a time as the table is written
 
 
 @cell_function(y="Range of the standards' measured y (the response), one column.",
