@@ -303,8 +303,8 @@ def UNBEND_EXPLAIN(y, x, y_power=None, x_power=None):
 # ------------------------------------------------------------------ calibration
 
 _LV = "Interval level, default 0.95 (95 also works)."
-_REP = ("Readings per sample, averaged on the re-expressed scale. Blank: 1 for a column, or the number of columns "
-        "of a block (one row per sample).")
+_REP = ("Readings per sample, averaged on the re-expressed scale. Blank: 1 for a column, or the width of a block "
+        "(one row per sample). For the readings of one sample in one row or column, give their count.")
 
 
 def _replicates(value, default: int = 1):
