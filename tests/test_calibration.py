@@ -244,7 +244,7 @@ def test_vectorised_simulation_is_the_engine_path():
     # a few runs of the simulation through fit(...).inverse(...), readings in original units
     rng = np.random.default_rng(99)
     xs = np.repeat([1.0, 2, 5, 10, 20, 50], 2)
-    for run in range(5):
+    for _ in range(5):
         y = np.exp(1.1 + 0.8 * np.log(xs) + rng.normal(0, 0.05, xs.size))
         readings = np.exp(1.1 + 0.8 * np.log(7.0) + rng.normal(0, 0.05, 3))
         f = unbend.fit(y, xs, y_power=0, x_power=0)

@@ -633,6 +633,7 @@ def test_inverse_replicates_in_cells(cars_data):
     assert len(out) == 3 and column_of(out, IH["readings"]) == [3, 2]
     assert column_of(out, IH["low"]) == [approx(v) for v in r["low"]]
     assert "2 of 3 readings are numbers" in column_of(out, IH["note"])[1]
+    assert column_of(out, IH["y_mean"]) == [approx(v) for v in r["y"]]  # the square of the mean square root
     assert call("UNBEND_INVERSE", y, x, block, 0.5, 1, None, None, 3) == out
     # a column of the readings of one sample, with replicates = their count
     one = check_table(call("UNBEND_INVERSE", y, x, [[30.0], [34.0], [38.0]], 0.5, 1, None, None, 3))

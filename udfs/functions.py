@@ -347,6 +347,8 @@ def UNBEND_INVERSE(y, x, measured_y, y_power=None, x_power=None, what=None, leve
         return cells.scalar(vals[0]) if vals.size == 1 else cells.column(vals)
     words = inverse_headers(lv)
     header = [words[c] for c in _INV_COLS] + ["y power", "x power", "rows used", "rows skipped"]
+    if m > 1:
+        header[0] = words["y_mean"]
     k = len(r["x"])
     columns = [np.asarray(r[c], dtype=float).tolist() for c in ("y", "x", "low", "high")]
     body_cols = [columns[0], np.asarray(r["readings"]).tolist(), columns[1], columns[2], columns[3],

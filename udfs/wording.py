@@ -39,6 +39,7 @@ def prediction_headers(level: float) -> dict:
 #: Columns of x read back from measured y: engine name -> header ({pct} is the level, e.g. 95%).
 INVERSE_HEADERS = {
     "y": "measured y",
+    "y_mean": "measured y (mean of the readings on the re-expressed scale, taken back)",
     "readings": "readings used",
     "x": "x (estimate)",
     "low": "low: x, {pct}",
