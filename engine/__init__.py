@@ -34,6 +34,7 @@ _WHERE = {
     "Check": ".diagnostics",
     "scan": ".scan", "best_pair": ".scan",
     "CensoredFit": ".censored", "CensoredMean": ".censored", "censored_mean": ".censored", "half_limit": ".censored",
+    "fieller": ".calibration", "calibration_limits": ".calibration", "CalibrationLimits": ".calibration",
 }
 
 __all__ = [
@@ -41,6 +42,7 @@ __all__ = [
     "propose_start", "rung_label", "PowerSuggestion", "choose_rung", "suggest_power", "suggest_x_power",
     "spread_power", "symmetry_power", "LineFit", "fit", "Check", "scan", "best_pair", "CAUTION",
     "CensoredFit", "CensoredMean", "censored_mean", "half_limit",
+    "fieller", "calibration_limits", "CalibrationLimits",
 ]
 
 

@@ -9,7 +9,8 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 
-__all__ = ["river_sediment", "tool_life", "fleet_fuel", "batch_defects", "assay_batches", "SCENARIOS"]
+__all__ = ["river_sediment", "tool_life", "fleet_fuel", "batch_defects", "assay_batches", "detector_calibration",
+           "detector_samples", "SCENARIOS"]
 
 INVENTED = "All numbers in this data set are invented by unbend's demo script (seeded random numbers); they are not measurements."
 
@@ -56,6 +57,29 @@ def assay_batches(groups: int = 8, per_group: int = 12, seed: int = 15) -> pd.Da
         vals = lv * rng.lognormal(0.0, 0.12, per_group)
         rows += [(f"batch {chr(65 + i)}", round(float(v), 3)) for v in vals]
     return pd.DataFrame(rows, columns=["batch", "result_mg_per_l"])
+
+
+def detector_calibration(levels=(0.5, 1.0, 2.0, 5.0, 10.0, 20.0, 50.0, 100.0), replicates: int = 3,
+                         seed: int = 16) -> pd.DataFrame:
+    """Detector signal (counts) against the known concentration of standards (ug/L), each standard read
+    ``replicates`` times: the detector saturates gently (signal grows as concentration to the power 0.78),
+    so log signal against log concentration is straight, with the scatter proportional to the signal."""
+    rng = np.random.default_rng(seed)
+    conc = np.repeat(np.asarray(levels, float), replicates)
+    signal = 850.0 * conc ** 0.78 * rng.lognormal(0.0, 0.04, conc.size)
+    return pd.DataFrame({"conc_ug_per_l": conc, "signal_counts": np.round(signal, 0)})
+
+
+def detector_samples(n: int = 12, replicates: int = 3, seed: int = 17) -> pd.DataFrame:
+    """Unknown samples for :func:`detector_calibration`: ``replicates`` readings of each, with the
+    concentration each was made up at (to compare with the estimate read back; unknown in real use)."""
+    rng = np.random.default_rng(seed)
+    true = np.round(np.exp(rng.uniform(np.log(0.8), np.log(90.0), n)), 2)
+    reads = 850.0 * true[:, None] ** 0.78 * rng.lognormal(0.0, 0.04, (n, replicates))
+    out = pd.DataFrame({"sample": [f"S{i + 1:02d}" for i in range(n)], "made_up_at_ug_per_l": true})
+    for j in range(replicates):
+        out[f"reading_{j + 1}"] = np.round(reads[:, j], 0)
+    return out
 
 
 SCENARIOS = {

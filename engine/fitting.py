@@ -111,6 +111,16 @@ class LineFit:
         from .predicting import predict
         return predict(self, new_x, level=level)
 
+    def inverse(self, new_y, level: float = 0.95, replicates: int = 1) -> pd.DataFrame:
+        """x read back from measured y, with an interval; see :func:`unbend.calibration.inverse`."""
+        from .calibration import inverse
+        return inverse(self, new_y, level=level, replicates=replicates)
+
+    def detection_limits(self, level: float = 0.95, replicates: int = 1):
+        """Critical level, detection and quantification limits; see :func:`unbend.calibration.calibration_limits`."""
+        from .calibration import calibration_limits
+        return calibration_limits(self, level=level, replicates=replicates)
+
     def slope_reading(self) -> str:
         """What the slope means in original units, in words."""
         from .predicting import slope_reading

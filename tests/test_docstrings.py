@@ -5,7 +5,7 @@ import importlib
 import pytest
 
 MODULES = ["unbend", "unbend.express", "unbend.power", "unbend.fitting", "unbend.predicting", "unbend.scan",
-           "unbend.censored"]
+           "unbend.censored", "unbend.calibration"]
 
 
 @pytest.mark.parametrize("name", MODULES)

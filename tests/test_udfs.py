@@ -35,12 +35,13 @@ import statsmodels.api as sm
 import unbend
 import unbend.udfs as U
 from unbend.udfs import functions as UF
-from unbend.udfs.wording import SCAN_HEADERS, prediction_headers
+from unbend.udfs.wording import SCAN_HEADERS, inverse_headers, prediction_headers
 
 NAMES = sorted(U.FUNCTIONS)
 WHOLE_COLUMN = 1_048_576  # rows in a whole worksheet column (common practice: the sheet's row limit)
 ALLOWED_CELL = (float, int, str, bool)
 PH = prediction_headers(0.95)  # the prediction table's own column words
+IH = inverse_headers(0.95)  # the read-back table's own column words
 _NUM_WORD = re.compile(r"(?i)(?<![A-Za-z])(nan|inf|infinity)(?![A-Za-z])")
 
 
@@ -132,7 +133,7 @@ def label_values(table):
 
 def skipped_shown(name, out):
     """The 'rows skipped' count a table shows."""
-    if name in ("UNBEND_FIT", "UNBEND_SYMMETRY"):
+    if name in ("UNBEND_FIT", "UNBEND_SYMMETRY", "UNBEND_LIMITS"):
         return label_values(out)["rows skipped"]
     if name == "UNBEND_SPREAD":
         return label_values(out)["rows skipped"]
@@ -179,11 +180,13 @@ def _args(name, Y, X, G):
         "UNBEND_UNDO": (Y, 0.5),
         "UNBEND_FORMULA": (Y, X, 0.5, 1.0, "B2"),
         "UNBEND_EXPLAIN": (Y, X, 0.5, 1.0),
+        "UNBEND_INVERSE": (Y, X, [20.0, 50.0], 0.5, 1.0),
+        "UNBEND_LIMITS": (Y, X, 0.5, 1.0),
     }[name]
 
 
 TABLES = {"UNBEND_SUGGEST", "UNBEND_SCAN", "UNBEND_FIT", "UNBEND_PREDICT", "UNBEND_RESIDUALS",
-          "UNBEND_SPREAD", "UNBEND_SYMMETRY"}
+          "UNBEND_SPREAD", "UNBEND_SYMMETRY", "UNBEND_INVERSE", "UNBEND_LIMITS"}
 
 
 def shaped(values, shape, header=None):
@@ -205,7 +208,7 @@ def shaped(values, shape, header=None):
 def test_every_function_is_described():
     assert set(NAMES) == {"UNBEND_POWER", "UNBEND_SUGGEST", "UNBEND_SCAN", "UNBEND_FIT", "UNBEND_PREDICT",
                           "UNBEND_RESIDUALS", "UNBEND_SPREAD", "UNBEND_SYMMETRY", "UNBEND_APPLY", "UNBEND_UNDO",
-                          "UNBEND_FORMULA", "UNBEND_EXPLAIN"}
+                          "UNBEND_FORMULA", "UNBEND_EXPLAIN", "UNBEND_INVERSE", "UNBEND_LIMITS"}
     assert U.CATEGORY == "unbend"
     for name in NAMES:
         info = U.FUNCTIONS[name]
@@ -284,6 +287,11 @@ def test_header_cell_on_top_is_skipped_and_counted(name, shape, cars_data):
         assert a["intercept"] == approx(b["intercept"]) and a["slope x"] == approx(b["slope x"])
     elif name == "UNBEND_PREDICT":
         assert [r[:7] for r in got] == [r[:7] for r in plain]
+    elif name == "UNBEND_INVERSE":
+        assert [r[:9] for r in got] == [r[:9] for r in plain]  # all but rows used and skipped
+    elif name == "UNBEND_LIMITS":
+        a, b = label_values(got), label_values(plain)
+        assert a["detection limit, x (Hubaux-Vos 1970)"] == approx(b["detection limit, x (Hubaux-Vos 1970)"])
     elif name in ("UNBEND_POWER", "UNBEND_FORMULA"):
         assert got == plain
 
@@ -376,6 +384,12 @@ def test_awkward_cells_are_skipped_and_counted(name, cars_data):
     elif name == "UNBEND_PREDICT":
         p = unbend.fit(yn, xn, y_power=0.5, x_power=1).predict([10.0, 20.0])
         assert column_of(out, PH["median"]) == [approx(v) for v in p["median"]]
+    elif name == "UNBEND_INVERSE":
+        r = unbend.fit(yn, xn, y_power=0.5, x_power=1).inverse([20.0, 50.0])
+        assert column_of(out, IH["x"]) == [approx(v) for v in r["x"]]
+    elif name == "UNBEND_LIMITS":
+        lim = unbend.fit(yn, xn, y_power=0.5, x_power=1).detection_limits()
+        assert label_values(out)["detection limit, x (Hubaux-Vos 1970)"] == approx(lim.detection_x)
 
 
 def test_awkward_options_give_a_message():
@@ -574,6 +588,108 @@ def test_predict_with_two_x_columns(trees_data):
     assert call("UNBEND_PREDICT", y, X, new, 0, 0, "mean") == [[approx(v)] for v in p["mean"]]
     # one new point given as a column of its two x values
     assert call("UNBEND_PREDICT", y, X, [10.0, 70.0], 0, 0, "median") == approx(p["median"].iloc[0])
+
+
+def test_inverse_matches_engine(cars_data):
+    y, x = cars_data
+    f = unbend.fit(np.array(y), np.array(x), y_power=0.5, x_power=1)
+    readings = [10.0, 35.0, 80.0, 130.0]
+    r = f.inverse(readings)
+    out = check_table(call("UNBEND_INVERSE", y, x, readings, 0.5, 1))
+    assert len(out) == 1 + len(readings)  # one row per measured y after the header
+    assert column_of(out, IH["y"]) == readings
+    for col in ("x", "low", "high"):
+        assert column_of(out, IH[col]) == [approx(v) for v in r[col]], col
+    assert column_of(out, IH["outside_range"]) == ["yes" if v else "no" for v in r["outside_range"]]
+    assert column_of(out, IH["outside_range"])[3] == "yes"  # 130 ft is beyond the line at 25 mph
+    assert "extrapolation" in column_of(out, IH["note"])[3]
+    assert set(column_of(out, "rows used")) == {50} and set(column_of(out, "y power")) == {0.5}
+    for what in ("x", "low", "high"):
+        one = call("UNBEND_INVERSE", y, x, 35.0, 0.5, 1, what)
+        assert type(one) is float and one == approx(r[what].iloc[1])
+        assert call("UNBEND_INVERSE", y, x, readings, 0.5, 1, what) == [[approx(v)] for v in r[what]]
+    r90 = f.inverse([35.0], level=0.9)
+    assert call("UNBEND_INVERSE", y, x, 35.0, 0.5, 1, "low", 90) == approx(r90["low"].iloc[0])
+    assert call("UNBEND_INVERSE", y, x, 35.0, 0.5, 1, "low", 0.9) == approx(r90["low"].iloc[0])
+    assert check_table(call("UNBEND_INVERSE", y, x, 35.0, 0.5, 1, None, 90))[0][3] == "low: x, 90%"
+
+
+def test_inverse_with_blank_and_text_readings(cars_data):
+    y, x = cars_data
+    out = check_table(call("UNBEND_INVERSE", y, x, ["dist", 20.0, None, "#N/A", 40.0], 0.5, 1))
+    assert len(out) == 1 + 5
+    assert column_of(out, IH["x"])[0] == "" and column_of(out, IH["x"])[2] == ""
+    assert column_of(out, IH["note"])[0] == "the reading is not a number"
+    assert column_of(out, IH["readings"]) == [0, 1, 0, 0, 1]
+    assert is_message(call("UNBEND_INVERSE", y, x, None, 0.5, 1))
+
+
+def test_inverse_replicates_in_cells(cars_data):
+    y, x = cars_data
+    f = unbend.fit(np.array(y), np.array(x), y_power=0.5, x_power=1)
+    # a block: one row per sample, one column per reading; blank replicates = the block's width
+    block = [[30.0, 34.0, 38.0], [60.0, None, 64.0]]
+    r = f.inverse(np.array([[30.0, 34.0, 38.0], [60.0, np.nan, 64.0]]), replicates=3)
+    out = check_table(call("UNBEND_INVERSE", y, x, block, 0.5, 1))
+    assert len(out) == 3 and column_of(out, IH["readings"]) == [3, 2]
+    assert column_of(out, IH["low"]) == [approx(v) for v in r["low"]]
+    assert "2 of 3 readings are numbers" in column_of(out, IH["note"])[1]
+    assert column_of(out, IH["y_mean"]) == [approx(v) for v in r["y"]]  # the square of the mean square root
+    assert call("UNBEND_INVERSE", y, x, block, 0.5, 1, None, None, 3) == out
+    # a column of the readings of one sample, with replicates = their count
+    one = check_table(call("UNBEND_INVERSE", y, x, [[30.0], [34.0], [38.0]], 0.5, 1, None, None, 3))
+    assert len(one) == 2 and one[1][:6] == out[1][:6]
+    # ambiguity is refused in words
+    msg = call("UNBEND_INVERSE", y, x, [30.0, 34.0, 38.0, 40.0], 0.5, 1, None, None, 3)
+    assert is_message(msg) and "replicates=3 but measured_y holds 4 reading(s)" in msg
+    msg = call("UNBEND_INVERSE", y, x, block, 0.5, 1, None, None, 2)
+    assert is_message(msg) and "set replicates=3 (got 2)" in msg
+    for bad in (0, 1.5, "3", True):
+        assert is_message(call("UNBEND_INVERSE", y, x, 30.0, 0.5, 1, None, None, bad))
+
+
+def test_inverse_open_ends_are_blank_cells_with_words():
+    # invented: a response with no real trend, so the slope is not significant at 95%
+    y = [10.3, 9.1, 11.0, 10.2, 9.6, 10.9, 10.1, 9.4, 10.6, 10.0]
+    x = [1.0, 1, 2, 2, 3, 3, 4, 4, 5, 5]
+    f = unbend.fit(np.array(y), np.array(x))
+    assert f.pvalues[1] > 0.05
+    out = check_table(call("UNBEND_INVERSE", y, x, [10.0, 12.0], 1, 1))
+    assert column_of(out, IH["low"]) == ["", ""] and column_of(out, IH["high"]) == ["", ""]
+    for note in column_of(out, IH["note"]):
+        assert "no closed interval: the slope is not significant at the 95% level" in note
+    assert call("UNBEND_INVERSE", y, x, 10.0, 1, 1, "high") == ""
+
+
+def test_inverse_refuses_two_x_columns(trees_data):
+    y, X = trees_data
+    out = call("UNBEND_INVERSE", y, X, 20.0, 0, 0)
+    assert is_message(out) and "one x column" in out
+
+
+def test_limits_match_engine(cars_data):
+    y, x = cars_data
+    f = unbend.fit(np.array(y), np.array(x), y_power=0.5, x_power=1)
+    lim = f.detection_limits(level=0.99, replicates=2)
+    out = check_table(call("UNBEND_LIMITS", y, x, 0.5, 1, 99, 2))
+    assert out[0] == ["item", "value", "definition"]
+    assert [r[0] for r in out[1:]] == [r[0] for r in lim.rows()]
+    for (label, value, definition), row in zip(lim.rows(), out[1:]):
+        assert row[2] == definition
+        if isinstance(value, float) and np.isfinite(value):
+            assert row[1] == approx(value), label
+    d = label_values(out)
+    assert d["replicates per sample"] == 2 and d["rows used"] == 50 and d["rows skipped"] == 0
+    assert d["level (one-sided)"] == 0.99
+
+
+def test_limits_not_defined_say_why_in_cells(cars_data):
+    y, x = cars_data
+    out = check_table(call("UNBEND_LIMITS", y, x, 0, 0))  # log of speed: x = 0 has no place on the scale
+    row = [r for r in out if r[0] == "detection limit, x (Hubaux-Vos 1970)"][0]
+    assert row[1] == "" and row[2].startswith("not defined: the blank (x = 0) cannot be re-expressed")
+    assert check_table(call("UNBEND_LIMITS", y, x, 0, 0, None, None, None, 1.0))  # with an x start it runs
+    assert is_message(call("UNBEND_LIMITS", y, x, 0.5, 1, None, 0))
 
 
 def test_residuals_match_engine(cars_data):

@@ -175,6 +175,8 @@ START = option(st.sampled_from([None, None, 0.0, 0.5, 1.0, 10.0, -1.0]))
 LEVEL = option(st.sampled_from([None, 0.95, 0.9, 95.0, 0.5, 99.0]))
 WHAT = option(st.sampled_from([None, "median", "mean", "low", "high", " MEAN "]))
 WHAT2 = option(st.sampled_from([None, "median", "mean", " Median "]))
+WHAT_X = option(st.sampled_from([None, "x", "low", "high", " X "]))
+REPLICATES = option(st.sampled_from([None, None, 1.0, 2.0, 3.0, 1, 0.0, 2.5, -1.0]))
 WHICH = option(st.sampled_from([None, "y", "x", " X "]))
 CELL = option(st.sampled_from([None, "B2", "$B$2", "A2", "b7", "", "x_in"]),
               st.one_of(st.sampled_from(["A1:B2", "=B2", "Sheet1!B2", "B2;C3"]), any_cell))
@@ -200,6 +202,19 @@ def yx(draw):
 def yx_new(draw):
     y, x = draw(paired())
     return {"y": y, "x": x, "new_x": draw(st.one_of(one_range(), st.just([10.0, 20.0]), positive))}
+
+
+@st.composite
+def readings(draw):
+    """Measured y: a range in any shape, a block of replicate readings, or plain numbers."""
+    return draw(st.one_of(one_range(), shapes(numeric_cell, 6), st.just([10.0, 20.0]), positive,
+                          st.lists(st.lists(positive, min_size=3, max_size=3), min_size=1, max_size=4)))
+
+
+@st.composite
+def yx_readings(draw):
+    y, x = draw(paired())
+    return {"y": y, "x": x, "measured_y": draw(readings())}
 
 
 @st.composite
@@ -229,6 +244,11 @@ STRATEGIES = {
     "UNBEND_FORMULA": with_options(yx(), [("y_power", POWER), ("x_power", POWER), ("x_cell", CELL),
                                           ("what", WHAT2)]),
     "UNBEND_EXPLAIN": with_options(yx(), [("y_power", POWER), ("x_power", POWER)]),
+    "UNBEND_INVERSE": with_options(yx_readings(), [("y_power", POWER), ("x_power", POWER), ("what", WHAT_X),
+                                                   ("level", LEVEL), ("replicates", REPLICATES),
+                                                   ("y_start", START), ("x_start", START)]),
+    "UNBEND_LIMITS": with_options(yx(), [("y_power", POWER), ("x_power", POWER), ("level", LEVEL),
+                                         ("replicates", REPLICATES), ("y_start", START), ("x_start", START)]),
 }
 
 
@@ -288,9 +308,10 @@ _HUGE_Y = {"y": [5.106656920250869e+38, 0.007413062863356937, 0.0488005862656815
 _OVERFLOWING_FIT = {"y": [5033.168532872607, -329809.1191441278, 0.0, 1e300],
                     "x": [0.0, 847984.3499072471, 18.704014056232253, 1e-300], "y_power": 1.0, "x_power": 1 / 3}
 _SCANNING = ("UNBEND_POWER", "UNBEND_SUGGEST", "UNBEND_SCAN", "UNBEND_FIT", "UNBEND_PREDICT", "UNBEND_RESIDUALS",
-             "UNBEND_FORMULA", "UNBEND_EXPLAIN")
+             "UNBEND_FORMULA", "UNBEND_EXPLAIN", "UNBEND_INVERSE", "UNBEND_LIMITS")
 EXAMPLES = {name: [_HUGE_Y] for name in _SCANNING}  # blank powers: the scan of rungs runs
-for _name in ("UNBEND_FIT", "UNBEND_RESIDUALS", "UNBEND_EXPLAIN", "UNBEND_PREDICT", "UNBEND_FORMULA"):
+for _name in ("UNBEND_FIT", "UNBEND_RESIDUALS", "UNBEND_EXPLAIN", "UNBEND_PREDICT", "UNBEND_FORMULA", "UNBEND_INVERSE",
+              "UNBEND_LIMITS"):
     EXAMPLES[_name].insert(0, _OVERFLOWING_FIT)
 # three rows: the interval for the x power has no upper end
 _OPEN_INTERVAL = {"y": [15.772169249534112, 19.08889456428062, 46.941940719974774],

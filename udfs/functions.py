@@ -25,13 +25,14 @@ import xlwings as xw
 import unbend
 from unbend import UnbendError
 from unbend.fitting import CAUTION
+from unbend.calibration import inverse_columns
 from unbend.predicting import prediction_columns
 from unbend.wording import fitted_rung_words
 
 from . import cells, intake
 from .formula import model_formula
 from .host import HostCells, HostProblem, HostReference, HostResult, SameCells
-from .wording import SCAN_HEADERS, prediction_headers
+from .wording import SCAN_HEADERS, inverse_headers, prediction_headers
 
 CATEGORY = "unbend"
 
@@ -397,6 +398,81 @@ def UNBEND_EXPLAIN(y, x, y_power=None, x_power=None):
     """Text: a few plain sentences on the re-expression, the slope in original units, the residual checks and cautions."""
     f, rd = _fit(y, x, y_power, x_power, None, None)
     return " ".join([f.explain()] + rd.lines("position"))
+
+
+# ------------------------------------------------------------------ calibration
+
+_LV = "Interval level, default 0.95 (95 also works)."
+_REP = ("Readings per sample, averaged on the re-expressed scale. Blank: 1 for a column, or the width of a block "
+        "(one row per sample). For the readings of one sample in one row or column, give their count.")
+
+
+def _replicates(value, default: int = 1):
+    r = cells.optional_number(value, "replicates", float(default))
+    if r < 1 or r != int(r):
+        raise UnbendError(f"replicates must be a whole number of readings, 1 or more; got {r:g}.")
+    return int(r)
+
+
+def _calibration_fit(y, x, y_power, x_power, y_start, x_start):
+    """The calibration line (one x) and the reading of the standards' cells."""
+    f, rd = _fit(y, x, y_power, x_power, y_start, x_start, 0.95)
+    if len(f.x_names) != 1:
+        raise UnbendError("reading x back from y needs one x column; select a single x column.")
+    return f, rd
+
+
+_INV_COLS = ["y", "readings", "x", "low", "high", "outside_range", "note"]
+
+
+@cell_function(y="Range of the standards' measured y (the response), one column.",
+               x="Range of the standards' known x (such as concentration), one column.",
+               measured_y=("Readings of unknown samples: one column (one reading per sample), or a block with one "
+                           "row per sample and one column per replicate reading."),
+               y_power=_YP, x_power=_XP,
+               what='Optional: "x", "low" or "high" to get just those numbers; blank for the full table.',
+               level=_LV, replicates=_REP, y_start=_YS, x_start=_XS)
+def UNBEND_INVERSE(y, x, measured_y, y_power=None, x_power=None, what=None, level=None, replicates=None,
+                   y_start=None, x_start=None):
+    """x read back from measured y with the calibration line: estimate, interval (Fieller's, in original units) and an outside-range flag."""
+    lv = _level(level)
+    w = cells.optional_text(what, "what", ("x", "low", "high"), None)
+    f, rd = _calibration_fit(y, x, y_power, x_power, y_start, x_start)
+    M = cells.to_block(measured_y, "measured_y")
+    if M.shape[0] == 0:
+        raise UnbendError("measured_y is empty; give the reading(s) to read x back from.")
+    m = _replicates(replicates, M.shape[1])
+    r = inverse_columns(f, M if M.shape[1] > 1 else M[:, 0], level=lv, replicates=m, name="measured_y")
+    if w is not None:
+        vals = np.asarray(r[w])
+        return cells.scalar(vals[0]) if vals.size == 1 else cells.column(vals)
+    words = inverse_headers(lv)
+    header = [words[c] for c in _INV_COLS] + ["y power", "x power", "rows used", "rows skipped"] + _reading_header()
+    if m > 1:
+        header[0] = words["y_mean"]
+    k = len(r["x"])
+    columns = [np.asarray(r[c], dtype=float).tolist() for c in ("y", "x", "low", "high")]
+    body_cols = [columns[0], np.asarray(r["readings"]).tolist(), columns[1], columns[2], columns[3],
+                 np.where(r["outside_range"], "yes", "no").tolist(), r["note"],
+                 [f.y_power] * k, [f.x_power] * k, [f.n] * k, [rd.n_skipped] * k]
+    body_cols += [[v] * k for v in _reading_cells(rd)]
+    return cells.table(header, zip(*body_cols))  # rows made one at a time as the table is written
+
+
+@cell_function(y="Range of the standards' measured y (the response), one column.",
+               x="Range of the standards' known x (such as concentration), one column; include blanks at x = 0.",
+               y_power=_YP, x_power=_XP,
+               level="One-sided level of the decisions, default 0.95 (95 also works): false-positive and false-negative risks of 5%.",
+               replicates="Readings averaged per sample (default 1).", y_start=_YS, x_start=_XS)
+def UNBEND_LIMITS(y, x, y_power=None, x_power=None, level=None, replicates=None, y_start=None, x_start=None):
+    """Table: critical level, detection and quantification limits in x units (Hubaux-Vos band, Currie, ICH 3.3 s/slope and 10 s/slope), each with its definition."""
+    lv = _level(level)
+    m = _replicates(replicates)
+    f, rd = _calibration_fit(y, x, y_power, x_power, y_start, x_start)
+    lim = f.detection_limits(level=lv, replicates=m)  # a few small sums: no cache needed
+    rows = [[k, rd.n_skipped, rd.skipped_words() if rd.n_skipped else d] if k == "rows skipped" else [k, v, d]
+            for k, v, d in lim.rows()]
+    return cells.table(["item", "value", "definition"], rows)
 
 
 __all__ = sorted(FUNCTIONS) + ["FUNCTIONS", "CATEGORY", "CAUTION"]

@@ -39,6 +39,24 @@ def prediction_headers(level: float) -> dict:
     return {k: v.format(pct=pct) for k, v in PREDICTION_HEADERS.items()}
 
 
+#: Columns of x read back from measured y: engine name -> header ({pct} is the level, e.g. 95%).
+INVERSE_HEADERS = {
+    "y": "measured y",
+    "y_mean": "measured y (mean of the readings on the re-expressed scale, taken back)",
+    "readings": "readings used",
+    "x": "x (estimate)",
+    "low": "low: x, {pct}",
+    "high": "high: x, {pct}",
+    "outside_range": "outside the standards' x range",
+    "note": "note",
+}
+
+
+def inverse_headers(level: float) -> dict:
+    pct = f"{level * 100:g}%"
+    return {k: v.format(pct=pct) for k, v in INVERSE_HEADERS.items()}
+
+
 # ----------------------------------------------------------------------------- reading data (issue 9)
 #: Why a value or a row is not used: reason key (unbend.udfs.intake.REASON_KEYS) -> words users read.
 REASONS = {

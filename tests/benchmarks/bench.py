@@ -34,7 +34,7 @@ import scipy.stats as st
 from scipy import optimize
 
 import unbend
-from unbend.udfs import UNBEND_PREDICT, cells
+from unbend.udfs import UNBEND_INVERSE, UNBEND_PREDICT, cells
 from unbend.udfs.functions import _cache
 
 try:
@@ -210,6 +210,33 @@ def bench_cells(repeats):
         "reference: the same 1,000 statsmodels cells")
 
 
+def bench_inverse(repeats):
+    """10,000 readings read back to x from one UNBEND_INVERSE cell (invented bending calibration, 12 standards)."""
+    rng = np.random.default_rng(6)
+    xs = np.repeat([1.0, 2, 5, 10, 20, 50], 2)
+    ys = 3.0 * xs ** 0.8 * rng.lognormal(0.0, 0.03, xs.size)
+    readings = (3.0 * rng.uniform(1.0, 50.0, 10_000) ** 0.8).tolist()  # a flat list, as xlwings hands a column
+    ylist, xlist = ys.tolist(), xs.tolist()
+    _cache.clear()
+    cold = timed(lambda: (_cache.clear(), UNBEND_INVERSE(ylist, xlist, readings, 0, 0)), repeats)
+    UNBEND_INVERSE(ylist, xlist, readings, 0, 0)  # the fit is cached from here on, as in a recalculating sheet
+    warm = timed(lambda: UNBEND_INVERSE(ylist, xlist, readings, 0, 0), max(repeats, 7))
+    cpu = []
+    for _ in range(max(repeats, 7)):  # processor time as well: on a shared machine wall time waits for a core
+        t0 = time.process_time()
+        UNBEND_INVERSE(ylist, xlist, readings, 0, 0)
+        cpu.append(time.process_time() - t0)
+    out = UNBEND_INVERSE(ylist, xlist, readings, 0, 0)
+    r = unbend.fit(ys, xs, y_power=0, x_power=0).inverse(np.array(readings))
+    ok = len(out) == 10_001 and len(out[0]) == 11
+    for i in (1, 5_000, 10_000):
+        ok &= all(abs(out[i][j] - r[c].iloc[i - 1]) <= 1e-12 * abs(r[c].iloc[i - 1]) for j, c in ((2, "x"), (3, "low"), (4, "high")))
+    row("one UNBEND_INVERSE, 10^4 readings, fit cached", warm, None, "\u2264 50 ms", ok,
+        f"cells to numbers, cache look-up, inverse, 10,001 x 11 table; processor time {statistics.median(cpu) * 1000:.1f} ms")
+    row("one UNBEND_INVERSE, 10^4 readings, fit included", cold, None, "\u2264 100 ms", ok,
+        "the same plus the fit of the 12 standards (powers given)")
+
+
 def bench_column(repeats):
     col = [[float(i)] for i in range(10_000)] + [[None] for _ in range(1_048_576 - 10_000)]  # one list per row, as xlwings gives
     ours = timed(lambda: cells.to_numbers(col), max(repeats, 7))
@@ -361,6 +388,7 @@ def main(argv=None):
     bench_boxcox_x(100_000 if a.quick else 1_000_000, reps)
     bench_scan(100_000, reps)
     bench_cells(reps)
+    bench_inverse(reps)
     bench_column(reps)
     bench_host(reps)
     bench_censored(reps)

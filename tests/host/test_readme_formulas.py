@@ -1,8 +1,9 @@
 """Every formula example in the README, typed into a fake workbook and run through xlwings' own code.
 
 The README's examples assume a table named ``Data`` (columns ``flow``, ``load``, ``count``,
-``size``), a table named ``Assay`` (``result``, ``batch``), new x values in ``F2:F6`` and
-re-expressed values in ``G2:G40``. Here those are filled with unbend's own invented demo data
+``size``), a table named ``Assay`` (``result``, ``batch``), a table named ``Std`` (``conc``,
+``signal``), new x values in ``F2:F6``, re-expressed values in ``G2:G40`` and measured readings in
+``H2:J40``. Here those are filled with unbend's own invented demo data
 (``unbend.demo_data``: seeded random numbers in scenarios of our own, not measurements). Each
 formula's arguments are resolved the way the program resolves them (a table column or a range is a
 Range, text in quotes is text, a number is a number, an empty argument is VBA's missing marker); the
@@ -56,7 +57,7 @@ def split_args(text: str) -> list:
 
 
 class Workbook:
-    """The README's workbook: tables Data and Assay, F2:F6 and G2:G40 on one sheet."""
+    """The README's workbook: tables Data, Assay and Std, F2:F6, G2:G40 and H2:J40 on one sheet."""
 
     def __init__(self):
         self.host = Host()
@@ -75,6 +76,14 @@ class Workbook:
         s.put_column("K1", ["batch"] + list(assay["batch"]))
         self.tables[("Assay", "result")] = f"J2:J{len(assay) + 1}"
         self.tables[("Assay", "batch")] = f"K2:K{len(assay) + 1}"
+        std = demo_data.detector_calibration()  # table Std in M1:N25
+        s.put_column("M1", ["conc"] + [float(v) for v in std["conc_ug_per_l"]])
+        s.put_column("N1", ["signal"] + [float(v) for v in std["signal_counts"]])
+        self.tables[("Std", "conc")] = f"M2:M{len(std) + 1}"
+        self.tables[("Std", "signal")] = f"N2:N{len(std) + 1}"
+        samples = demo_data.detector_samples(n=39)  # readings in H2:J40, three per sample
+        for j, letter in enumerate("HIJ", start=1):
+            s.put_column(f"{letter}2", [float(v) for v in samples[f"reading_{j}"]])
         s.put_column("F2", [5.0, 20.0, 50.0, 200.0, 600.0])  # new x values
         s.put_column("G2", [float(v) ** 0.5 for v in river["sediment_t_per_day"][:39]])  # re-expressed values
 
@@ -97,6 +106,8 @@ class Workbook:
                 return rng, ref
             value = rng.Value
             if isinstance(value, tuple):
+                if len(value[0]) > 1 and len(value) > 1:  # a block: rows of cells, as a Python user passes it
+                    return rng, [list(row) for row in value]
                 flat = [c for row in value for c in row]
                 return rng, flat
             return rng, value
