@@ -18,6 +18,7 @@ from .power import (PowerSuggestion, choose_rung, spread_power, suggest_power, s
 from .fitting import CAUTION, LineFit, fit
 from .diagnostics import Check
 from .scan import best_pair, scan
+from .groups import CommonPower, GroupFit, fit_groups
 
 __version__ = "0.1.0"
 
@@ -25,4 +26,5 @@ __all__ = [
     "UnbendError", "DomainError", "LADDER", "EXTRA_RUNGS", "Reexpression", "express", "unexpress",
     "propose_start", "rung_label", "PowerSuggestion", "choose_rung", "suggest_power", "suggest_x_power",
     "spread_power", "symmetry_power", "LineFit", "fit", "Check", "scan", "best_pair", "CAUTION",
+    "CommonPower", "GroupFit", "fit_groups",
 ]
