@@ -542,43 +542,48 @@ def _normality(counts, st, r_sorted, const_r):
     """Shapiro-Wilk (D'Agostino-Pearson above 5,000 rows) per group, from each group's sorted residuals.
 
     The coefficients of Shapiro-Wilk depend on the number of rows only, so they
-    are computed once per group size and reused.
+    are computed once per group size and reused; each group then costs one
+    call of the compiled routine behind :func:`scipy.stats.shapiro`.
     """
     G = counts.size
     stat = np.full(G, np.nan)
     p = np.full(G, np.nan)
     name = np.full(G, "Shapiro-Wilk", dtype=object)
+    finite = np.add.reduceat(~np.isfinite(r_sorted), st) == 0
+    todo = np.flatnonzero((counts >= 8) & ~const_r & finite)
+    big = todo[counts[todo] > 5000]
+    for g in big.tolist():
+        stat[g], p[g] = dagostino_pearson(r_sorted[st[g]:st[g] + counts[g]])
+        name[g] = "D'Agostino-Pearson"
+    small = todo[counts[todo] <= 5000]
+    swilk = _swilk()
     coef = {}
-    for g in np.flatnonzero((counts >= 8) & ~const_r):
-        a, b = st[g], st[g] + counts[g]
-        v = r_sorted[a:b]
-        if not np.all(np.isfinite(v)):
-            continue
-        if counts[g] > 5000:
-            stat[g], p[g] = dagostino_pearson(v)
-            name[g] = "D'Agostino-Pearson"
+    w_out, p_out = [], []
+    for a, n in zip(st[small].tolist(), counts[small].tolist()):
+        v = r_sorted[a:a + n]
+        y = v - v[n // 2]
+        c = coef.get(n)
+        if swilk is None:  # pragma: no cover - a scipy without the routine: the public function
+            res = stats.shapiro(v)
+            w, pw = res.statistic, res.pvalue
+        elif c is None:
+            c = coef[n] = np.zeros(n // 2)
+            w, pw, _ = swilk(y, c, 0)
         else:
-            stat[g], p[g] = _shapiro_sorted(v, coef)
+            w, pw, _ = swilk(y, c, 1)
+        w_out.append(w)
+        p_out.append(pw)
+    stat[small], p[small] = w_out, p_out
     return {"normality_w": stat, "normality_p": p, "normality_name": name}
 
 
-def _shapiro_sorted(v, coef):
-    """Shapiro-Wilk W and p for sorted values (scipy's AS R94 routine, coefficients reused by size)."""
-    n = v.size
+def _swilk():
+    """The AS R94 routine behind :func:`scipy.stats.shapiro` (None if this scipy does not have it)."""
     try:
-        from scipy.stats._morestats import swilk  # the routine behind scipy.stats.shapiro
-    except ImportError:  # pragma: no cover - a scipy without it: the public function
-        res = stats.shapiro(v)
-        return float(res.statistic), float(res.pvalue)
-    y = v - v[n // 2]
-    a = coef.get(n)
-    if a is None:
-        a = np.zeros(n // 2, dtype=np.float64)
-        w, pw, _ = swilk(y, a, 0)
-        coef[n] = a
-    else:
-        w, pw, _ = swilk(y, a, 1)
-    return float(w), float(pw)
+        from scipy.stats._morestats import swilk
+    except ImportError:  # pragma: no cover
+        return None
+    return swilk
 
 
 def _check_list(name, stat, p, alpha, direction=None):
@@ -614,7 +619,7 @@ _MID = int(np.flatnonzero(_K == 0)[0])
 _H = 1e-4
 
 
-def profile_maxima(values, G, level, centre, step, limit=20.0):
+def profile_maxima(values, G, level, centre, step, limit=20.0, tol=1e-5, xtol=1e-11):
     """Maximum and likelihood-ratio interval of G profile log-likelihoods at once.
 
     Parameters
@@ -629,6 +634,12 @@ def profile_maxima(values, G, level, centre, step, limit=20.0):
         Where each group's search starts and the grid spacing there.
     limit : float
         Powers beyond +-limit are not searched; an end not reached there is +-inf.
+    tol : float
+        A Newton step shorter than this (relative to the power, or absolute
+        below 1) ends the search for the maximum; the error left is of the
+        order of its square.
+    xtol : float
+        Relative tolerance of the interval ends.
 
     Returns
     -------
@@ -683,9 +694,9 @@ def profile_maxima(values, G, level, centre, step, limit=20.0):
     best, top = _best(V)
     ok = np.isfinite(top)
     edge = ok & (((best == lo_i) & (lo_i == lo_stop)) | ((best == hi_i) & (hi_i == hi_stop)))
-    est, top, curv = _refine_max(values, G, P, V, best, ok & ~edge, top)
-    low = _end(values, G, P, V, best, lo_i, est, top, curv, q, ok, -1)
-    high = _end(values, G, P, V, best, hi_i, est, top, curv, q, ok, +1)
+    est, top, curv = _refine_max(values, G, P, V, best, ok & ~edge, top, tol)
+    low = _end(values, G, P, V, best, lo_i, est, top, curv, q, ok, -1, xtol)
+    high = _end(values, G, P, V, best, hi_i, est, top, curv, q, ok, +1, xtol)
     return {"est": np.where(ok, est, np.nan), "low": np.where(ok, low, np.nan),
             "high": np.where(ok, high, np.nan), "top": np.where(ok, top, np.nan), "edge": edge, "ok": ok}
 
@@ -700,11 +711,11 @@ def _best(V):
     return best, W[np.arange(V.shape[0]), best]
 
 
-def _refine_max(values, G, P, V, best, inner, top):
+def _refine_max(values, G, P, V, best, inner, top, tol):
     """Newton steps on central differences, inside a bracket that only shrinks.
 
     Returns the maxima, the log-likelihood there and the curvature (minus the
-    second derivative) at the last step. A step shorter than 1e-5 ends the
+    second derivative) at the last step. A step shorter than ``tol`` ends the
     search: Newton's error after it is of the order of its square.
     """
     rows = np.arange(G)
@@ -737,7 +748,7 @@ def _refine_max(values, G, P, V, best, inner, top):
         new = np.where(use, newton, 0.5 * (aa + cc))
         curv[act] = np.where(d2 < 0, -d2 / (_H * _H), curv[act])
         dead = ~np.isfinite(f0) & ~np.isfinite(fp) & ~np.isfinite(fm)
-        done = (use & (np.abs(new - e) <= 1e-5 * np.maximum(1.0, np.abs(e)))) | (cc - aa <= 1e-10) | dead
+        done = (use & (np.abs(new - e) <= tol * np.maximum(1.0, np.abs(e)))) | (cc - aa <= 1e-10) | dead
         a[act], c[act], est[act] = aa, cc, np.where(dead, e, new)
         active[act[done]] = False
     ev = np.flatnonzero(np.isfinite(top))
@@ -747,7 +758,7 @@ def _refine_max(values, G, P, V, best, inner, top):
     return est, top, curv
 
 
-def _end(values, G, P, V, best, ext_i, est, top, curv, q, ok, direction):
+def _end(values, G, P, V, best, ext_i, est, top, curv, q, ok, direction, xtol):
     """One end of each likelihood-ratio interval: a probe where the parabola at the top says, then false
     position (Anderson-Bjorck) in the bracket that gives."""
     out = np.full(G, direction * np.inf)
@@ -774,24 +785,36 @@ def _end(values, G, P, V, best, ext_i, est, top, curv, q, ok, direction):
     in_ok = inner_ok[idx] & (direction * (P[idx, ji] - est[idx]) > 0)
     b = np.where(in_ok, P[idx, ji], est[idx])
     fb = np.where(in_ok, V[idx, ji] - cut[idx], q)
-    # probe where the parabola with the curvature at the top crosses the cut
+    # The search runs in s = (power - estimate)^2, where the profile is nearly a straight line; a first probe
+    # goes where the parabola with the curvature at the top crosses the cut.
+    e = est[idx]
+    sa, sb = (a - e) ** 2, (b - e) ** 2
     with np.errstate(all="ignore"):
-        probe = est[idx] + direction * np.sqrt(2.0 * q / curv[idx])
-    inside = np.isfinite(probe) & ((probe - a) * (probe - b) < 0)
+        probe = 2.0 * q / curv[idx]
+    inside = np.isfinite(probe) & ((probe - sa) * (probe - sb) < 0)
     k = np.flatnonzero(inside)
     if k.size:
-        fk = values(probe[k], idx[k]) - cut[idx[k]]
+        fk = values(e[k] + direction * np.sqrt(probe[k]), idx[k]) - cut[idx[k]]
         neg = np.where(np.isfinite(fk), fk, -np.inf) < 0
-        a[k[neg]], fa[k[neg]] = probe[k[neg]], fk[neg]
-        b[k[~neg]], fb[k[~neg]] = probe[k[~neg]], fk[~neg]
+        sa[k[neg]], fa[k[neg]] = probe[k[neg]], fk[neg]
+        sb[k[~neg]], fb[k[~neg]] = probe[k[~neg]], fk[~neg]
     rows = np.arange(G)
-    out[idx] = _illinois(lambda p, s: values(p, s) - cut[rows if s is None else s], G, idx, a, fa, b, fb)
+
+    def f(sq, sel):
+        at = e if sel is None or sel.size == idx.size else e[np.searchsorted(idx, sel)]
+        return values(at + direction * np.sqrt(sq), sel) - cut[rows if sel is None else sel]
+
+    # a step dp in the power is a step of about 2 |power - estimate| dp in s
+    tol = 2.0 * np.sqrt(np.maximum(sa, sb)) * xtol * np.maximum(1.0, np.abs(e))
+    root = _illinois(f, G, idx, sa, fa, sb, fb, tol)
+    out[idx] = e + direction * np.sqrt(root)
     return out
 
 
-def _illinois(f, G, idx, a, fa, b, fb):
-    """Roots of f in brackets [a, b] with f(a) < 0 <= f(b), for the profiles ``idx`` at once: false
-    position with the Anderson-Bjorck correction (a bisection step wherever f is not finite)."""
+def _illinois(f, G, idx, a, fa, b, fb, tol):
+    """Roots of f in brackets [a, b] with f(a) < 0 <= f(b), for the profiles ``idx`` at once, to the
+    absolute tolerances ``tol``: false position with the Anderson-Bjorck correction (a bisection step
+    wherever f is not finite)."""
     a, fa, b, fb = a.copy(), fa.copy(), b.copy(), fb.copy()
     root = np.full(a.shape, np.nan)
     last = np.zeros(idx.size, dtype=int)  # which side moved last: -1 the low side, +1 the high side
@@ -824,8 +847,7 @@ def _illinois(f, G, idx, a, fa, b, fb):
         fb[act[again_lo]] *= m[again_lo]
         fa[act[again_hi]] *= m[again_hi]
         last[act] = np.where(neg, -1, +1)
-        tol = 1e-11 * np.maximum(1.0, np.abs(c))
         with np.errstate(invalid="ignore"):  # old is NaN on the first step
-            done = (np.abs(b[act] - a[act]) <= 2 * tol) | (fc == 0) | (np.abs(c - old) <= tol)
+            done = (np.abs(b[act] - a[act]) <= 2 * tol[act]) | (fc == 0) | (np.abs(c - old) <= tol[act])
         active[act[done]] = False
     return root

@@ -37,6 +37,10 @@ TABLE_COLUMNS = ["group", "n", "skipped", "used", "reason", "intercept", "slope"
 #: Above this many rows, a seeded subset of whole groups finds where to look first.
 LOCATE_ABOVE = 40_000
 LOCATE_ROWS = 20_000
+#: Each group's own power is found to about 1e-8 and its interval ends to 1e-9 (they are read against the
+#: common power, not used in further arithmetic); the common powers to about 1e-10 and 1e-11.
+OWN_TOL, OWN_XTOL = 1e-4, 1e-9
+_KEEP_TERMS = 3  # sets of per-group sums kept per block
 _ROUNDS = 4  # at most this many alternations between the y power and the x power
 _SKIP_LIMIT = 10_000  # skipped rows listed one by one, at most
 
@@ -53,8 +57,8 @@ class CommonPower:
         The powers every group's line uses.
     y, x : PowerSuggestion or None
         The suggestion from the joint profile likelihood (a line per group):
-        for y given x at ``x_power``, for x given y at ``y_power``. None when the
-        data cannot have one (values at or below 0 after the start).
+        for y given x at ``x_power``, for x given y at ``y_power``. None for a
+        power that was given (it is used as given).
     y_pinned, x_pinned : bool
         True when the power was given rather than chosen.
     note : str
@@ -223,12 +227,17 @@ class GroupFit:
 
 def _label_key(v):
     """Sort key for group labels of any mix of types: numbers, then booleans, then text, then the rest."""
+    t = type(v)
+    if t is str:
+        return (2, 0.0, v)
+    if t is float or t is int:
+        return (0, float(v), "")
     if isinstance(v, (bool, np.bool_)):
         return (1, int(v), "")
     if isinstance(v, numbers.Real):
         return (0, float(v), "")
     if isinstance(v, str):
-        return (2, 0.0, v)
+        return (2, 0.0, str(v))
     return (3, 0.0, f"{type(v).__name__}:{v}")
 
 
@@ -330,7 +339,13 @@ def read_rows(y, x, groups) -> BlockRows:
 # ----------------------------------------------------------------------------- one machine
 
 class LocalSource:
-    """Every group in one block in memory; the profiles and the group table computed here."""
+    """Groups in one block in memory: every group on one machine, or one partition's groups on Dask.
+
+    The profile pieces (:meth:`y_mean_log`, :meth:`lse`), the domain check and
+    the group table are what a partition contributes; :meth:`profile` combines
+    them for one block. :class:`unbend.distributed.DaskSource` combines them
+    across partitions with the same code.
+    """
 
     def __init__(self, rows: BlockRows, y_start: float, x_start: float):
         self.rows = rows
@@ -342,60 +357,115 @@ class LocalSource:
         self.G = self.block.G
         self.n_skipped = int(sum(rows.reasons.values()))
 
+    # pieces a block contributes
+    def domain_error(self, t: Reexpression, what: str):
+        """The DomainError (or None) for re-expressing this block's ``what`` with ``t``, and its smallest value."""
+        v = self.block.y if what == "y" else self.block.x
+        try:
+            t.check(v, what)
+        except UnbendError as e:
+            return e, float(v.min())
+        return None, np.inf
+
+    def y_mean_log(self, x_power):
+        """(sum over the groups of rows x mean log y, rows) at x power ``x_power``."""
+        if self.G == 0:
+            return 0.0, 0
+        t = block_terms(self.block, "y", x_power, self.ys, self.xs)
+        return float(np.sum(t.counts * t.m)), t.n
+
+    def lse(self, what, other, p, m=0.0):
+        """log of this block's summed residual sum of squares at power ``p`` (see :mod:`unbend._blocks`)."""
+        if self.G == 0:
+            return -np.inf
+        t = block_terms(self.block, what, other, self.ys, self.xs)
+        return B.common_y_lse(t, p, m) if what == "y" else B.common_x_lse(t, p)
+
+    # the whole source
     def check(self, t: Reexpression, what: str) -> None:
-        t.check(self.block.y if what == "y" else self.block.x, what)
+        err, _ = self.domain_error(t, what)
+        if err is not None:
+            raise err
+
+    def lse_many(self, what, other, ps, m=0.0):
+        return [self.lse(what, other, p, m) for p in ps]
 
     def profile(self, what: str, other_power: float):
-        """``f(p) -> log-likelihood`` of the common power for ``what`` given the other power."""
-        return _block_profile(self.block, what, other_power, self.ys, self.xs, combine=_one_block)
+        """``f(p) -> log-likelihood`` of the common power for ``what`` given the other power
+        (``f.many(powers)`` for several at once)."""
+        m = 0.0
+        if what == "y":
+            total, n = self.y_mean_log(other_power)
+            m = total / n
+        return Profile(lambda ps: [self.lse_many(what, other_power, ps, m)], what, self.N, m)
 
     def locator(self):
         """A source over a subset of whole groups with about 20,000 rows, or None for small data.
 
         The groups are taken in an order fixed by their labels alone, so the
         same groups are taken however the rows arrive (and on Dask as here)."""
+        if "_locator" in self.__dict__:
+            return self._locator
         take = locator_groups(self.block.labels, self.block.counts, self.N)
-        if take is None:
-            return None
-        sub = LocalSource.__new__(LocalSource)
-        sub.block = self.block.take(take)
-        sub.ys, sub.xs, sub.N, sub.G, sub.n_skipped = self.ys, self.xs, sub.block.n, sub.block.G, 0
-        return sub
+        self._locator = None
+        if take is not None:
+            self._locator = subset_source(self.block.take(take), self.ys, self.xs)
+        return self._locator
 
-    def table(self, y_power, x_power, level):
+    def table(self, y_power, x_power, level, own=True):
         return group_table(self.rows.labels, self.rows.n_used, self.rows.n_skipped, self.rows.block, self.reasons,
-                           self.block, y_power, x_power, self.ys, self.xs, level)
+                           self.block, y_power, x_power, self.ys, self.xs, level, own)
 
     def rows_of(self, label):
+        """(y, x) of the usable rows of the group ``label`` (empty when this block does not hold it)."""
         b = self.rows.block
-        g = int(np.flatnonzero([_same_label(v, label) for v in b.labels])[0])
-        r = b.rows_of(np.array([g]))
+        hit = np.flatnonzero([_same_label(v, label) for v in b.labels])
+        r = b.rows_of(hit[:1])
         return b.y[r], b.x[r]
+
+
+class Profile:
+    """The common profile log-likelihood at one power (``f(p)``) or several (``f.many(ps)``), from the
+    blocks' log residual sums of squares: ``lse_parts(ps)`` gives one list per block."""
+
+    def __init__(self, lse_parts, what, N, m):
+        self.lse_parts, self.what, self.N, self.m = lse_parts, what, N, m
+
+    def many(self, ps):
+        parts = self.lse_parts(list(ps))
+        return [profile_ll(self.what, [blk[k] for blk in parts], self.N, self.m) for k in range(len(ps))]
+
+    def __call__(self, p):
+        return self.many([float(p)])[0]
+
+
+def subset_source(block, ys, xs):
+    """A source over a block of usable groups (a locator): profiles only."""
+    sub = LocalSource.__new__(LocalSource)
+    sub.block = block
+    sub.ys, sub.xs, sub.N, sub.G, sub.n_skipped, sub._locator = ys, xs, block.n, block.G, 0, None
+    return sub
+
+
+def profile_ll(what, lses, N, m):
+    """The common profile log-likelihood from the blocks' log residual sums of squares (combined in the
+    order given): Box-Cox for y (in the units of y, Jacobian included), or over the x power."""
+    lse = float(np.logaddexp.reduce(np.asarray(lses, dtype=float))) if len(lses) > 1 else float(lses[0])
+    ll = float(B.gaussian_ll(lse, N))
+    return ll - N * m if what == "y" else ll
 
 
 def locator_groups(labels, counts, N):
     """Positions (sorted) of the groups a locator uses, or None when the data are small enough to use all."""
     if N <= LOCATE_ABOVE or len(labels) < 2:
         return None
-    order = sorted(range(len(labels)), key=lambda i: (zlib.crc32(repr(_label_key(labels[i])).encode()),
-                                                      _label_key(labels[i])))
-    order = np.array(order, dtype=np.intp)
+    keys = [_label_key(v) for v in labels]
+    order = np.array(sorted(range(len(labels)), key=lambda i: (zlib.crc32(repr(keys[i]).encode()), keys[i])),
+                     dtype=np.intp)
     take = order[:int(np.searchsorted(np.cumsum(counts[order]), LOCATE_ROWS)) + 1]
     if counts[take].sum() > N / 2:
         return None
     return np.sort(take)
-
-
-def _one_block(parts):
-    return parts[0]
-
-
-def _block_profile(block, what, other, ys, xs, combine):
-    terms = block_terms(block, what, other, ys, xs)
-    if what == "y":
-        m = float(np.sum(terms.counts * terms.m)) / terms.n
-        return lambda p: B.gaussian_ll(combine([B.common_y_lse(terms, p, m)]), terms.n) - terms.n * m
-    return lambda p: B.gaussian_ll(combine([B.common_x_lse(terms, p)]), terms.n)
 
 
 def block_terms(block, what, other, ys, xs):
@@ -403,13 +473,18 @@ def block_terms(block, what, other, ys, xs):
     (kept on the block, so the own-power profiles reuse them)."""
     memo = block.__dict__.setdefault("_terms", {})
     key = (what, float(other), ys, xs)
-    if key not in memo:
-        with np.errstate(all="ignore"):
-            if what == "y":
-                memo[key] = B.YTerms(block.counts, np.log(block.y + ys), Reexpression(other, xs).apply(block.x))
-            else:
-                memo[key] = B.XTerms(block.counts, Reexpression(other, ys).apply(block.y), np.log(block.x + xs))
-    return memo[key]
+    if key in memo:
+        memo[key] = memo.pop(key)  # most recently used last
+        return memo[key]
+    with np.errstate(all="ignore"):
+        if what == "y":
+            t = B.YTerms(block.counts, np.log(block.y + ys), Reexpression(other, xs).apply(block.x))
+        else:
+            t = B.XTerms(block.counts, Reexpression(other, ys).apply(block.y), np.log(block.x + xs))
+    while len(memo) >= _KEEP_TERMS:  # each holds four arrays the size of the data
+        memo.pop(next(iter(memo)))
+    memo[key] = t
+    return t
 
 
 # ----------------------------------------------------------------------------- the common power
@@ -462,12 +537,9 @@ def suggest_common(src, what, other, level, rungs=LADDER, extra="") -> PowerSugg
 def choose_common(src, y_power, x_power, level) -> CommonPower:
     """The pair of powers for every group: pinned powers as given; otherwise the rung each joint
     profile likelihood suggests, alternating y given x and x given y until neither changes."""
-    can_y = _possible(src, "y")
-    can_x = _possible(src, "x")
-    if y_power is None and not can_y[0]:
-        raise can_y[1]
-    if x_power is None and not can_x[0]:
-        raise can_x[1]
+    for what, given in (("y", y_power), ("x", x_power)):
+        if given is None:  # the profile over this power needs values above 0 (after the start)
+            src.check(Reexpression(0.0, src.ys if what == "y" else src.xs), what)
     sy = sx = None
     note = ""
     if y_power is not None and x_power is not None:
@@ -503,10 +575,6 @@ def choose_common(src, y_power, x_power, level) -> CommonPower:
         note = (f"{start}; then y was chosen given x and x given y, in turn, until neither rung changed ({steps})"
                 if settled else f"{start}; y and x chosen given each other in turn did not settle in {_ROUNDS} "
                 f"rounds ({steps}); the last y and the x it was chosen with are used")
-    if sy is None and can_y[0]:
-        sy = suggest_common(src, "y", xp, level)
-    if sx is None and can_x[0]:
-        sx = suggest_common(src, "x", yp, level)
     return CommonPower(y_power=float(yp), x_power=float(xp), y=sy, x=sx, y_pinned=y_power is not None,
                        x_pinned=x_power is not None, note=note)
 
@@ -516,26 +584,15 @@ def seed_pair(src, rungs=LADDER):
     Jacobian included), over every pair of ``rungs``."""
     best = (-np.inf, 1.0, 1.0)
     for rx in rungs:
-        f = src.profile("y", rx)
-        for ry in rungs:
-            ll = float(f(ry))
+        for ry, ll in zip(rungs, src.profile("y", rx).many(rungs)):
             if ll > best[0]:
                 best = (ll, ry, rx)
     return best[1], best[2]
 
 
-def _possible(src, what):
-    """(True, None) when the profile over this power can be computed; else (False, the DomainError)."""
-    try:
-        src.check(Reexpression(0.0, src.ys if what == "y" else src.xs), what)
-    except UnbendError as e:
-        return False, e
-    return True, None
-
-
 # ----------------------------------------------------------------------------- the group table
 
-def group_table(labels, n_used, n_skipped, seen_block, reasons, block, y_power, x_power, ys, xs, level):
+def group_table(labels, n_used, n_skipped, seen_block, reasons, block, y_power, x_power, ys, xs, level, own=True):
     """One row per group seen (:data:`TABLE_COLUMNS`), and the sums the slope test needs, from one block."""
     G = labels.size
     t = pd.DataFrame({"group": pd.Series(labels, dtype=object), "n": n_used.astype(np.int64),
@@ -564,10 +621,10 @@ def group_table(labels, n_used, n_skipped, seen_block, reasons, block, y_power, 
             if c in out:
                 num[c][pos] = out[c]
         verdicts[pos] = [verdict(r2, curv, spr, nor, n, pat) for r2, curv, pat, spr, nor, n in B.checks(out)]
-        for what, other in (("y", x_power), ("x", y_power)):
-            own = own_powers(block, what, other, y_power if what == "y" else x_power, ys, xs, level)
-            if own is not None:
-                num[f"own_{what}_power"][pos], num[f"own_{what}_low"][pos], num[f"own_{what}_high"][pos] = own
+        for what, other in (("y", x_power), ("x", y_power)) if own else ():
+            res = own_powers(block, what, other, y_power if what == "y" else x_power, ys, xs, level)
+            if res is not None:
+                num[f"own_{what}_power"][pos], num[f"own_{what}_low"][pos], num[f"own_{what}_high"][pos] = res
     for c in ["intercept", "slope", "slope_low", "slope_high", "se_intercept", "se_slope", "resid_sd", "r2",
               "curvature_p", "pattern_p", "spread_p", "normality_p"]:
         t[c] = num[c]
@@ -611,7 +668,7 @@ def own_powers(block, what, other, centre, ys, xs, level):
             ll = ll - c * (terms.m if sel is None else terms.m[sel])
         return ll
 
-    r = B.profile_maxima(values, block.G, level, centre, 0.5, SEARCH_LIMIT)
+    r = B.profile_maxima(values, block.G, level, centre, 0.5, SEARCH_LIMIT, tol=OWN_TOL, xtol=OWN_XTOL)
     return r["est"], r["low"], r["high"]
 
 
@@ -643,7 +700,8 @@ def equal_slopes(sums: pd.DataFrame):
 
 # ----------------------------------------------------------------------------- entry point
 
-def fit_groups(y, x, groups, *, y_power=None, x_power=None, y_start=0.0, x_start=0.0, level=0.95) -> GroupFit:
+def fit_groups(y, x, groups, *, y_power=None, x_power=None, y_start=0.0, x_start=0.0, level=0.95,
+               own_powers=True) -> GroupFit:
     """One re-expression for every group, a line per group, and a test of whether the slopes differ.
 
     Parameters
@@ -659,6 +717,10 @@ def fit_groups(y, x, groups, *, y_power=None, x_power=None, y_start=0.0, x_start
         Added before re-expressing.
     level : float
         Level of every interval.
+    own_powers : bool
+        Each group's own power for y and for x, with its interval (the
+        ``own_*`` columns). About half the work at scale; False leaves those
+        columns blank.
 
     Returns
     -------
@@ -720,10 +782,10 @@ def fit_groups(y, x, groups, *, y_power=None, x_power=None, y_start=0.0, x_start
     xp = None if x_power is None else check_power(x_power, "x_power")
     rows = read_rows(y, x, groups)
     src = LocalSource(rows, ys, xs)
-    return analyse(src, yp, xp, ys, xs, level, skipped=rows.skipped, reasons=rows.reasons)
+    return analyse(src, yp, xp, ys, xs, level, own=bool(own_powers), skipped=rows.skipped, reasons=rows.reasons)
 
 
-def analyse(src, yp, xp, ys, xs, level, *, skipped, reasons) -> GroupFit:
+def analyse(src, yp, xp, ys, xs, level, *, own, skipped, reasons) -> GroupFit:
     """The common powers, the group table and the slope test from a source of groups (one machine or many)."""
     if src.G == 0:
         raise UnbendError(f"no group has {B.MIN_GROUP_ROWS} or more usable rows with x and y that vary; "
@@ -732,7 +794,7 @@ def analyse(src, yp, xp, ys, xs, level, *, skipped, reasons) -> GroupFit:
         common = choose_common(src, yp, xp, level)
     src.check(Reexpression(common.y_power, ys), "y")
     src.check(Reexpression(common.x_power, xs), "x")
-    table, sums = src.table(common.y_power, common.x_power, level)
+    table, sums = src.table(common.y_power, common.x_power, level, own)
     F, p, dfs, pooled = equal_slopes(sums)
     used = table["used"].to_numpy(bool)
     return GroupFit(common=common, table=table, equal_slopes_p=p, equal_slopes_f=F, equal_slopes_df=dfs,
