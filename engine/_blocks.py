@@ -326,7 +326,8 @@ def lines(counts, yt, xt, x_raw, level):
     out = dict(n=counts, intercept=a * ybig, slope=slope, se_intercept=se_a * ybig, se_slope=se_slope,
                slope_low=slope - tq * se_slope, slope_high=slope + tq * se_slope, resid_sd=s * ybig, r2=r2,
                x_min=np.minimum.reduceat(x_raw, st), x_max=np.maximum.reduceat(x_raw, st),
-               sxx=sxx * xbig * xbig, rss=rss * ybig * ybig, syy=syy * ybig * ybig)
+               sxx_s=sxx, rss_s=rss, slope_s=b, log_ybig=np.full(counts.size, np.log(ybig)),
+               log_xbig=np.full(counts.size, np.log(xbig)))
     out.update(_checks(counts, st, xc, r, b, x_raw))
     return out, r * ybig
 

@@ -282,6 +282,13 @@ def group_codes(groups, n: int):
         raise UnbendError(f"groups must be one column of labels; got a block of shape {g.shape}.")
     if g.size != n:
         raise UnbendError(f"y has {n} rows but groups has {g.size}; give ranges of the same length.")
+    if g.dtype == object or g.dtype.kind == "b":
+        # a TRUE label is not the number 1 (Python and pandas would treat them as one key): text instead
+        isbool = np.fromiter((type(v) is bool or type(v) is np.bool_ for v in g.tolist()), bool, g.size) \
+            if g.dtype == object else np.ones(g.size, bool)
+        if isbool.any():
+            g = g.astype(object)
+            g[isbool] = np.where(g[isbool].astype(bool), "TRUE", "FALSE")
     codes, uniques = pd.factorize(g, use_na_sentinel=True)
     kept = [_clean_label(u) for u in np.asarray(uniques, dtype=object)]
     merged: dict = {}
@@ -605,7 +612,8 @@ def group_table(labels, n_used, n_skipped, seen_block, reasons, block, y_power, 
     num = {c: np.full(G, np.nan) for c in ["intercept", "slope", "slope_low", "slope_high", "se_intercept", "se_slope",
                                             "resid_sd", "r2", "curvature_p", "pattern_p", "spread_p", "normality_p",
                                             "own_y_power", "own_y_low", "own_y_high", "own_x_power", "own_x_low",
-                                            "own_x_high", "x_min", "x_max", "sxx", "rss"]}
+                                            "own_x_high", "x_min", "x_max", "sxx_s", "rss_s", "slope_s",
+                                            "log_ybig", "log_xbig"]}
     verdicts = np.full(G, "", dtype=object)
     pos = _positions(labels, block.labels)
     if block.G:
@@ -640,8 +648,8 @@ def group_table(labels, n_used, n_skipped, seen_block, reasons, block, y_power, 
     t["own_x_differs"] = t["used"] & ~((t["own_x_low"] <= x_power) & (x_power <= t["own_x_high"])) & \
         t["own_x_power"].notna()
     t["x_min"], t["x_max"] = num["x_min"], num["x_max"]
-    sums = pd.DataFrame({"group": t["group"], "n": t["n"], "slope": t["slope"], "sxx": num["sxx"],
-                         "rss": num["rss"], "used": t["used"]})
+    sums = pd.DataFrame({"group": t["group"], "n": t["n"], "used": t["used"],
+                         **{c: num[c] for c in ("slope_s", "sxx_s", "rss_s", "log_ybig", "log_xbig")}})
     return t[TABLE_COLUMNS], sums
 
 
@@ -677,6 +685,8 @@ def equal_slopes(sums: pd.DataFrame):
 
     Returns (F, p, (df1, df2), common slope). The extra sum of squares of the
     smaller model is ``sum_g Sxx_g (b_g - b)^2`` with ``b`` the pooled slope.
+    Each block's sums arrive divided by its largest y and x (``log_ybig``,
+    ``log_xbig``) and are brought to one scale here, so nothing overflows.
     """
     s = sums[sums["used"]]
     G = len(s)
@@ -684,14 +694,17 @@ def equal_slopes(sums: pd.DataFrame):
     df1, df2 = G - 1, N - 2 * G
     if G == 0:
         return np.nan, np.nan, (0, 0), np.nan
-    sxx = s["sxx"].to_numpy(float)
-    b = s["slope"].to_numpy(float)
+    ly, lx = s["log_ybig"].to_numpy(float), s["log_xbig"].to_numpy(float)
+    LY, LX = float(ly.max()), float(lx.max())
     with np.errstate(all="ignore"):
+        sxx = s["sxx_s"].to_numpy(float) * np.exp(2.0 * (lx - LX))
+        rss = float(np.sum(s["rss_s"].to_numpy(float) * np.exp(2.0 * (ly - LY))))
+        b = s["slope_s"].to_numpy(float) * np.exp((ly - LY) - (lx - LX))
         w = sxx / np.max(sxx)
-        pooled = float(np.sum(w * b) / np.sum(w))
-        extra = float(np.sum(w * (b - pooled) ** 2)) * float(np.max(sxx))
-        rss = float(np.sum(s["rss"].to_numpy(float)))
-        if G < 2 or df2 < 1 or not rss > 0:
+        pooled_s = float(np.sum(w * b) / np.sum(w))
+        extra = float(np.sum(sxx * (b - pooled_s) ** 2))
+        pooled = pooled_s * float(np.exp(LY - LX))
+        if G < 2 or df2 < 1 or not rss > 0 or not np.isfinite(extra):
             return np.nan, np.nan, (df1, df2), pooled
         F = (extra / df1) / (rss / df2)
         p = float(stats.f.sf(F, df1, df2))
