@@ -22,7 +22,7 @@ from . import _blocks as B
 from ._likelihood import SEARCH_LIMIT
 from ._validation import (FEW_ROWS, UnbendError, as_matrix, as_vector, check_level, check_number,
                           check_power)
-from .diagnostics import verdict
+from .diagnostics import ALPHA, PATTERN_ALPHA, verdict
 from .express import LADDER, Reexpression, rung_label
 from .power import PowerSuggestion, _suggestion
 
@@ -150,12 +150,17 @@ class GroupFit:
         t = self.table
         return t.loc[~t["used"], ["group", "n", "skipped", "reason"]].reset_index(drop=True)
 
+    def row(self, group) -> pd.Series:
+        """The table row of one group (its label as stored, or the same label written as text)."""
+        label = self._label(group)
+        return self.table.loc[self.table["group"].map(lambda v: _same_label(v, label))].iloc[0]
+
     def line(self, group):
         """The :class:`unbend.LineFit` of one group at the common powers (as :func:`unbend.fit` gives it)."""
         from .fitting import fit
         label = self._label(group)
         if label not in self._memo:
-            row = self.table.loc[self.table["group"].map(lambda v: _same_label(v, label))].iloc[0]
+            row = self.row(label)
             if not row["used"]:
                 raise UnbendError(f"group {label!r} has no line: {row['reason']}.")
             y, x = self._source.rows_of(label)
@@ -180,7 +185,7 @@ class GroupFit:
         """The groups with lines, those whose residual checks fail first, by their smallest check p-value."""
         t = self.table[self.table["used"]].copy()
         p = t[["curvature_p", "pattern_p", "spread_p"]]
-        alpha = np.array([0.05, 0.01, 0.05])
+        alpha = np.array([ALPHA, PATTERN_ALPHA, ALPHA])
         t["_fails"] = (p.to_numpy(float) < alpha).sum(axis=1)
         t["_min"] = (p.to_numpy(float) / alpha).min(axis=1, initial=np.inf, where=~np.isnan(p.to_numpy(float)))
         t = t.sort_values(["_fails", "_min"], ascending=[False, True], kind="mergesort")  # ties: label order
@@ -196,6 +201,46 @@ class GroupFit:
             return text[0]
         shown = ", ".join(repr(v) for v in labels[:5]) + (" ..." if len(labels) > 5 else "")
         raise UnbendError(f"there is no group {group!r}; the groups are {shown}.")
+
+    def explain(self) -> str:
+        """A few plain sentences: the powers every group uses, whether the slopes differ, which groups stand
+        out or were left out, and cautions."""
+        def how(power, pinned):
+            return f"power {power:g} ({rung_label(power)}, {'as given' if pinned else 'chosen from all groups together'})"
+
+        parts = [f"Every group's line uses y at {how(self.y_power, self.common.y_pinned)} and x at "
+                 f"{how(self.x_power, self.common.x_pinned)}."]
+        p = self.equal_slopes_p
+        if not np.isfinite(p):
+            parts.append("The slopes cannot be compared (fewer than 2 groups with a line, or no residual spread).")
+        elif p < 0.05:
+            parts.append(f"The slopes differ between groups (equal slopes F test {_p(p)}): compare groups by their "
+                         "own slopes, not by one shared slope.")
+        else:
+            parts.append(f"No clear difference between the groups' slopes (equal slopes F test {_p(p)}).")
+        t = self.table
+        for what in ("y", "x"):
+            k = int(t[f"own_{what}_differs"].sum())
+            if k:
+                parts.append(f"{k} group{'s' if k != 1 else ''} want{'' if k != 1 else 's'} another {what} power "
+                             "(their own interval leaves out the common one).")
+        bad = int(sum(1 for _ in self._failing()))
+        if bad:
+            parts.append(f"{bad} group{'s' if bad != 1 else ''} fail{'' if bad != 1 else 's'} a residual check "
+                         "(curvature, pattern or spread); see each verdict.")
+        left = self.n_groups - self.n_groups_used
+        if left:
+            parts.append(f"{left} group{'s' if left != 1 else ''} left out (too few rows, or x or y that does not "
+                         "vary).")
+        parts.append("Check each group's residuals; predictions outside a group's x range are extrapolation.")
+        return " ".join(parts)
+
+    def _failing(self):
+        t = self.table[self.table["used"]]
+        p = t[["curvature_p", "pattern_p", "spread_p"]].to_numpy(float)
+        with np.errstate(invalid="ignore"):
+            fails = (p < np.array([ALPHA, PATTERN_ALPHA, ALPHA])).any(axis=1)
+        return t["group"][fails]
 
     def rows(self) -> list[tuple[str, object]]:
         """Labelled rows (label, value) summarising the fit, for a two-column table."""
@@ -223,6 +268,10 @@ class GroupFit:
         return "\n".join(lines)
 
 
+def _p(pv: float) -> str:
+    return "p < 0.001" if pv < 0.001 else f"p = {pv:.3f}"
+
+
 # ----------------------------------------------------------------------------- labels and rows
 
 def _label_key(v):
@@ -230,12 +279,13 @@ def _label_key(v):
     t = type(v)
     if t is str:
         return (2, 0.0, v)
-    if t is float or t is int:
-        return (0, float(v), "")
     if isinstance(v, (bool, np.bool_)):
         return (1, int(v), "")
     if isinstance(v, numbers.Real):
-        return (0, float(v), "")
+        try:
+            return (0, float(v), "")
+        except OverflowError:  # an integer beyond the float range
+            return (0, float(np.sign(v)) * np.inf, str(v))
     if isinstance(v, str):
         return (2, 0.0, str(v))
     return (3, 0.0, f"{type(v).__name__}:{v}")
