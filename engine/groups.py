@@ -219,11 +219,13 @@ class GroupFit:
         else:
             parts.append(f"No clear difference between the groups' slopes (equal slopes F test {_p(p)}).")
         t = self.table
+        chance = (1.0 - self.level) * self.n_groups_used
         for what in ("y", "x"):
             k = int(t[f"own_{what}_differs"].sum())
             if k:
                 parts.append(f"{k} group{'s' if k != 1 else ''} want{'' if k != 1 else 's'} another {what} power "
-                             "(their own interval leaves out the common one).")
+                             f"(their own interval leaves out the common one; about {chance:.1f} would by chance "
+                             f"at the {self.level * 100:g}% level).")
         bad = int(sum(1 for _ in self._failing()))
         if bad:
             parts.append(f"{bad} group{'s' if bad != 1 else ''} fail{'' if bad != 1 else 's'} a residual check "

@@ -401,3 +401,31 @@ def test_summary_and_rows_say_what_was_found(dnase):
     assert rows["y power used"] == gf.y_power
     text = gf.summary()
     assert "equal slopes" in text and "caution" in text
+
+
+def test_explain_says_what_the_fit_found(dnase):
+    y, x, g = dnase
+    gf = unbend.fit_groups(y, x, g)
+    text = gf.explain()
+    assert f"y at power {gf.y_power:g} (log, chosen from all groups together)" in text
+    assert gf.equal_slopes_p < 0.001 and "The slopes differ between groups (equal slopes F test p < 0.001)" in text
+    k = int(gf.table["own_y_differs"].sum())
+    assert f"{k} groups want another y power" in text and f"about {0.05 * 11:.1f} would by chance" in text
+    bad = int(((gf.table["curvature_p"] < 0.05) | (gf.table["pattern_p"] < 0.01) | (gf.table["spread_p"] < 0.05)).sum())
+    assert f"{bad} groups fail a residual check" in text
+    pinned = unbend.fit_groups(y, x, g, y_power=0.5, x_power=0)
+    assert "y at power 0.5 (square root, as given) and x at power 0 (log, as given)" in pinned.explain()
+
+
+def test_demo_network_has_one_station_that_bends_differently():
+    from unbend.demo_data import GROUP_SCENARIOS, INVENTED, ODD_STATION
+    build, yc, xc, gc = GROUP_SCENARIOS["gauging_network"]
+    d = build()
+    assert d.attrs["note"] == INVENTED and 20 <= d[gc].nunique() <= 50
+    gf = unbend.fit_groups(d[yc], d[xc], d[gc])
+    # known truth by construction: logs straighten every station but one, whose own y power is 0.5
+    assert (gf.y_power, gf.x_power) == (0.0, 0.0)
+    odd = gf.row(ODD_STATION)
+    assert odd["own_y_differs"] and odd["own_y_low"] < 0.5 < odd["own_y_high"]
+    assert gf.worst(1)["group"].iloc[0] == ODD_STATION
+    assert gf.n_skipped == d[yc].isna().sum() > 0
