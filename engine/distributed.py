@@ -120,6 +120,11 @@ def _rows_of(src: LocalSource, label):
     return src.rows_of(label)
 
 
+def _release(src: LocalSource):
+    src.release()
+    return True
+
+
 # ------------------------------------------------------------------------------- the driver
 
 class DaskSource:
@@ -182,6 +187,10 @@ class DaskSource:
         sums = pd.concat([s for _, s in got], ignore_index=True)
         order = sorted(range(len(table)), key=lambda k: _label_key(table["group"].iloc[k]))
         return table.iloc[order].reset_index(drop=True), sums.iloc[order].reset_index(drop=True)
+
+    def release(self) -> None:
+        self._map(_release)
+        self._locator = None
 
     def rows_of(self, label):
         got = self._map(_rows_of, label)

@@ -20,8 +20,7 @@ from scipy import stats
 
 from . import _blocks as B
 from ._likelihood import SEARCH_LIMIT
-from ._validation import (FEW_ROWS, UnbendError, as_matrix, as_vector, check_level, check_number,
-                          check_power)
+from ._validation import UnbendError, as_matrix, as_vector, check_level, check_number, check_power
 from .diagnostics import ALPHA, PATTERN_ALPHA, verdict
 from .express import LADDER, Reexpression, rung_label
 from .power import PowerSuggestion, _suggestion
@@ -475,6 +474,15 @@ class LocalSource:
         return group_table(self.rows.labels, self.rows.n_used, self.rows.n_skipped, self.rows.block, self.reasons,
                            self.block, y_power, x_power, self.ys, self.xs, level, own)
 
+    def release(self) -> None:
+        """Drop what only the analysis needed (per-group sums, work arrays, the locator): a result keeps
+        just the rows, for predictions."""
+        for b in (self.__dict__.get("block"), self.rows.block):
+            if b is not None:
+                b.__dict__.pop("_terms", None)
+        self.block = None
+        self._locator = None
+
     def rows_of(self, label):
         """(y, x) of the usable rows of the group ``label`` (empty when this block does not hold it)."""
         b = self.rows.block
@@ -862,6 +870,7 @@ def analyse(src, yp, xp, ys, xs, level, *, own, skipped, reasons) -> GroupFit:
     table, sums = src.table(common.y_power, common.x_power, level, own)
     F, p, dfs, pooled = equal_slopes(sums)
     used = table["used"].to_numpy(bool)
+    src.release()
     return GroupFit(common=common, table=table, equal_slopes_p=p, equal_slopes_f=F, equal_slopes_df=dfs,
                     common_slope=pooled, n=int(table.loc[used, "n"].sum()), n_groups=len(table),
                     n_groups_used=int(used.sum()), skipped=tuple(skipped), n_skipped=int(sum(reasons.values())),

@@ -4,7 +4,8 @@ import importlib
 
 import pytest
 
-MODULES = ["unbend", "unbend.express", "unbend.power", "unbend.fitting", "unbend.predicting", "unbend.scan"]
+MODULES = ["unbend", "unbend.express", "unbend.power", "unbend.fitting", "unbend.predicting", "unbend.scan",
+           "unbend.groups"]
 
 
 @pytest.mark.parametrize("name", MODULES)
