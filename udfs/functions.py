@@ -311,8 +311,9 @@ def _yxg(y, x, groups):
     labels = cells.to_labels(groups, "groups")
     if yv.size == 0 or xv.size == 0 or not labels:
         raise UnbendError("y, x and groups must each be a range with values; select the three columns.")
-    n = max(yv.size, xv.size, len(labels))
-    yv, xv, _ = cells.pad_rows(yv, xv, np.empty(n))  # trailing blanks were trimmed: back to one length
+    n = max(yv.size, xv.size, len(labels))  # trailing blanks were trimmed: back to one length
+    yv = np.concatenate([yv, np.full(n - yv.size, np.nan)])
+    xv = np.concatenate([xv, np.full(n - xv.size, np.nan)])
     labels = np.array(list(labels) + [None] * (n - len(labels)), dtype=object)
     return yv, xv, labels
 
