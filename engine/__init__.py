@@ -35,6 +35,7 @@ _WHERE = {
     "scan": ".scan", "best_pair": ".scan",
     "CensoredFit": ".censored", "CensoredMean": ".censored", "censored_mean": ".censored", "half_limit": ".censored",
     "fieller": ".calibration", "calibration_limits": ".calibration", "CalibrationLimits": ".calibration",
+    "CommonPower": ".groups", "GroupFit": ".groups", "fit_groups": ".groups",
 }
 
 __all__ = [
@@ -43,6 +44,7 @@ __all__ = [
     "spread_power", "symmetry_power", "LineFit", "fit", "Check", "scan", "best_pair", "CAUTION",
     "CensoredFit", "CensoredMean", "censored_mean", "half_limit",
     "fieller", "calibration_limits", "CalibrationLimits",
+    "CommonPower", "GroupFit", "fit_groups",
 ]
 
 

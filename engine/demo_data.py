@@ -10,7 +10,7 @@ import numpy as np
 import pandas as pd
 
 __all__ = ["river_sediment", "tool_life", "fleet_fuel", "batch_defects", "assay_batches", "detector_calibration",
-           "detector_samples", "SCENARIOS"]
+           "detector_samples", "gauging_network", "SCENARIOS", "GROUP_SCENARIOS"]
 
 INVENTED = "All numbers in this data set are invented by unbend's demo script (seeded random numbers); they are not measurements."
 
@@ -87,4 +87,44 @@ SCENARIOS = {
     "tool_life": (tool_life, "tool_life_min", "cutting_speed_m_min"),
     "fleet_fuel": (fleet_fuel, "km_per_litre", "payload_t"),
     "batch_defects": (batch_defects, "defects", "batch_size"),
+}
+
+
+#: Station of :func:`gauging_network` whose rating bends differently (by construction).
+ODD_STATION = "G17 below the weir"
+
+
+def gauging_network(stations: int = 30, readings: int = 40, seed: int = 21) -> pd.DataFrame:
+    """An invented network of river gauging stations: suspended sediment (t/day) against discharge (m³/s).
+
+    At every station but one, log sediment is a straight line in log discharge, with the station's own
+    intercept and slope (logs of both straighten it). At ``ODD_STATION`` a weir upstream traps coarse
+    sediment, and it is the square root of the load that is straight in log discharge: that station wants
+    another re-expression. Readings are uneven in number, and a few are missing (blank).
+    """
+    if not 2 <= stations <= 99:
+        raise ValueError("stations must be between 2 and 99")
+    rng = np.random.default_rng(seed)
+    names = [f"G{i + 1:02d}" for i in range(stations)]
+    names[min(16, stations - 1)] = ODD_STATION
+    rows = []
+    for name in names:
+        n = int(rng.integers(max(8, readings // 2), readings + readings // 2 + 1))
+        q = np.round(np.exp(rng.uniform(np.log(3.0), np.log(300.0), n)), 1)
+        if name == ODD_STATION:
+            load = (3.0 + 2.2 * np.log(q) + rng.normal(0.0, 0.25, n)) ** 2
+        else:
+            a, b = rng.normal(-0.5, 0.4), rng.normal(1.5, 0.12)
+            load = np.exp(a + b * np.log(q) + rng.normal(0.0, 0.3, n))
+        rows += [(name, float(v), round(float(w), 2)) for v, w in zip(q, load)]
+    out = pd.DataFrame(rows, columns=["station", "discharge_m3s", "sediment_t_per_day"])
+    gaps = rng.choice(len(out), size=max(1, len(out) // 150), replace=False)
+    out.loc[gaps, "sediment_t_per_day"] = np.nan
+    out.attrs["note"] = INVENTED
+    return out
+
+
+#: Scenarios with many series: name -> (builder, y column, x column, group column).
+GROUP_SCENARIOS = {
+    "gauging_network": (gauging_network, "sediment_t_per_day", "discharge_m3s", "station"),
 }

@@ -5,7 +5,7 @@ import importlib
 import pytest
 
 MODULES = ["unbend", "unbend.express", "unbend.power", "unbend.fitting", "unbend.predicting", "unbend.scan",
-           "unbend.censored", "unbend.calibration"]
+           "unbend.censored", "unbend.calibration", "unbend.groups"]
 
 
 @pytest.mark.parametrize("name", MODULES)

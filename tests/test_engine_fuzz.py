@@ -540,6 +540,48 @@ def test_spread_power(data, opts):
     no_leak(leak, "spread_power")
 
 
+# ============================================================================ fit_groups
+@st.composite
+def grouped_xy(draw):
+    """y, one x column and group labels: a few invented groups, hostile cells and labels dropped in."""
+    ycells, xrows, _ = draw(datasets(max_rows=30, max_cols=1))
+    n = len(ycells)
+    k = draw(st.integers(min_value=1, max_value=4))
+    labs = draw(st.lists(st.sampled_from(GROUP_LABELS), min_size=k, max_size=k))
+    grp = [labs[i % k] for i in range(n)]
+    y = wrap_column(ycells, draw(st.sampled_from(["list", "array", "series"])))
+    x = wrap_column([r[0] for r in xrows], draw(st.sampled_from(["list", "array", "series", "column"])))
+    how = draw(st.sampled_from(["list", "array", "series"]))
+    g = grp if how == "list" else (np.array(grp, dtype=object) if how == "array" else pd.Series(grp, dtype=object))
+    return y, x, g, n
+
+
+@PROFILE
+@given(data=grouped_xy(), yp=st.one_of(st.none(), st.none(), powers), xp=st.one_of(st.none(), st.none(), powers),
+       opts=options(y_start="start", x_start="start", level="level"))
+def test_fit_groups(data, yp, xp, opts):
+    y, x, g, n = data
+    (status, gf), leak = run(unbend.fit_groups, y, x, g, y_power=yp, x_power=xp, **opts)
+    if status == "ok":
+        assert isinstance(gf, unbend.GroupFit)
+        t = gf.table
+        assert list(t.columns) == unbend.groups.TABLE_COLUMNS and len(t) == gf.n_groups >= gf.n_groups_used >= 1
+        assert int(t["n"].sum()) + gf.n_skipped == n  # every row is used or skipped with its reason
+        assert gf.n == int(t.loc[t["used"], "n"].sum())
+        for s, what in ((gf.common.y, "y"), (gf.common.x, "x")):
+            if s is not None:
+                check_suggestion(s, rungs=None, level=opts["level"], nrows=None, what=what)
+        used = t[t["used"]]
+        for c in ("intercept", "slope", "resid_sd"):
+            assert np.all(np.isfinite(used[c].to_numpy(float))), c
+        for c in ("curvature_p", "pattern_p", "spread_p", "normality_p"):
+            assert all(_in_01(p) for p in used[c]), c
+        assert _in_01(gf.equal_slopes_p)
+        text = gf.explain()
+        assert "\n" not in text and not re.search(r"(?i)\b(nan|inf)\b", text)
+    no_leak(leak, "fit_groups")
+
+
 # ============================================================================ scan / best_pair
 SCAN_COLUMNS = ["rank", "y_power", "x_power", "y_rung", "x_rung", "loglik", "curvature_p", "pattern_p", "spread_p",
                 "normality_p", "r2", "r2_original", "verdict", "n"]
@@ -974,6 +1016,9 @@ EDGE_CASES = [
      dict(data=([2.0, 3.0, 5.0], [1.0, 2.0, 3.0], 3, 1), pin="none", pinned=0.0)),
     ("fit x +-1e308", test_fit, dict(args=([1.0, 2.0, 3.0, 4.0, 5.0], [1e308, -1e308, 3.0, 5.0, 6.0], 5, 1, {}))),
     ("fit single row", test_fit, dict(args=([1.0], [2.0], 1, 1, {}))),
+    ("fit_groups two groups of three", test_fit_groups,
+     dict(data=([1.0, 2.0, 3.5, 4.0, 6.0, 5.5], [1.0, 2.0, 3.0, 1.0, 2.0, 4.0], ["a"] * 3 + ["b"] * 3, 6),
+          yp=None, xp=None, opts=_o(y_start=0.0, x_start=0.0, level=0.95))),
     ("fit constant x", test_fit, dict(args=([1.0, 2.0, 3.0, 4.0], [2.0, 2.0, 2.0, 2.0], 4, 1, {}))),
     ("fit ragged block", test_fit,
      dict(args=([1.0, 2.0, 3.0, 4.0, 5.0], [[1, 2], [3], [4, 5], [6, 7], [8, 9]], 5, 2, {}))),

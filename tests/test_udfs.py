@@ -139,6 +139,13 @@ def skipped_shown(name, out):
         return label_values(out)["rows skipped"]
     if name == "UNBEND_SUGGEST":
         return out[1][out[0].index("rows skipped")]
+    if name == "UNBEND_GROUPS":  # the first row holds every group together
+        assert out[1][0] == "all groups"
+        return out[1][out[0].index("rows skipped")]
+    if name == "UNBEND_GROUP_PREDICT":
+        col = column_of(out, "rows skipped (all groups)")
+        assert len(set(col)) == 1, col
+        return col[0]
     col = column_of(out, "rows skipped")
     assert len(set(col)) == 1, col
     return col[0]
@@ -182,11 +189,14 @@ def _args(name, Y, X, G):
         "UNBEND_EXPLAIN": (Y, X, 0.5, 1.0),
         "UNBEND_INVERSE": (Y, X, [20.0, 50.0], 0.5, 1.0),
         "UNBEND_LIMITS": (Y, X, 0.5, 1.0),
+        "UNBEND_GROUPS": (Y, X, G, 0.5, 1.0),
+        "UNBEND_GROUP_PREDICT": (Y, X, G, "medium", [10.0, 14.0], 0.5, 1.0),
     }[name]
 
 
 TABLES = {"UNBEND_SUGGEST", "UNBEND_SCAN", "UNBEND_FIT", "UNBEND_PREDICT", "UNBEND_RESIDUALS",
-          "UNBEND_SPREAD", "UNBEND_SYMMETRY", "UNBEND_INVERSE", "UNBEND_LIMITS"}
+          "UNBEND_SPREAD", "UNBEND_SYMMETRY", "UNBEND_INVERSE", "UNBEND_LIMITS",
+          "UNBEND_GROUPS", "UNBEND_GROUP_PREDICT"}
 
 
 def shaped(values, shape, header=None):
@@ -208,7 +218,8 @@ def shaped(values, shape, header=None):
 def test_every_function_is_described():
     assert set(NAMES) == {"UNBEND_POWER", "UNBEND_SUGGEST", "UNBEND_SCAN", "UNBEND_FIT", "UNBEND_PREDICT",
                           "UNBEND_RESIDUALS", "UNBEND_SPREAD", "UNBEND_SYMMETRY", "UNBEND_APPLY", "UNBEND_UNDO",
-                          "UNBEND_FORMULA", "UNBEND_EXPLAIN", "UNBEND_INVERSE", "UNBEND_LIMITS"}
+                          "UNBEND_FORMULA", "UNBEND_EXPLAIN", "UNBEND_INVERSE", "UNBEND_LIMITS",
+                          "UNBEND_GROUPS", "UNBEND_GROUP_PREDICT"}
     assert U.CATEGORY == "unbend"
     for name in NAMES:
         info = U.FUNCTIONS[name]
@@ -285,13 +296,16 @@ def test_header_cell_on_top_is_skipped_and_counted(name, shape, cars_data):
     elif name == "UNBEND_FIT":
         a, b = label_values(got), label_values(plain)
         assert a["intercept"] == approx(b["intercept"]) and a["slope x"] == approx(b["slope x"])
-    elif name == "UNBEND_PREDICT":
+    elif name in ("UNBEND_PREDICT", "UNBEND_GROUP_PREDICT"):
         assert [r[:7] for r in got] == [r[:7] for r in plain]
     elif name == "UNBEND_INVERSE":
         assert [r[:9] for r in got] == [r[:9] for r in plain]  # all but rows used and skipped
     elif name == "UNBEND_LIMITS":
         a, b = label_values(got), label_values(plain)
         assert a["detection limit, x (Hubaux-Vos 1970)"] == approx(b["detection limit, x (Hubaux-Vos 1970)"])
+    elif name == "UNBEND_GROUPS":  # the header row forms a group of its own, with no usable rows
+        assert [r for r in got[2:] if r[0] != "band"] == plain[2:]
+        assert [r[-1] for r in got if r[0] == "band"] == ["no usable rows (y and x not both numbers)"]
     elif name in ("UNBEND_POWER", "UNBEND_FORMULA"):
         assert got == plain
 
@@ -390,6 +404,9 @@ def test_awkward_cells_are_skipped_and_counted(name, cars_data):
     elif name == "UNBEND_LIMITS":
         lim = unbend.fit(yn, xn, y_power=0.5, x_power=1).detection_limits()
         assert label_values(out)["detection limit, x (Hubaux-Vos 1970)"] == approx(lim.detection_x)
+    elif name == "UNBEND_GROUPS":
+        gf = unbend.fit_groups(yn, xn, g, y_power=0.5, x_power=1)
+        assert column_of(out, "slope")[1:] == [approx(v) for v in gf.table["slope"]]
 
 
 def test_awkward_options_give_a_message():
@@ -413,7 +430,8 @@ def test_errors_in_a_single_cell_argument():
                 assert is_message(out) or name in ("UNBEND_APPLY", "UNBEND_UNDO"), (name, cell, out)
 
 
-@pytest.mark.parametrize("name", [n for n in NAMES if n not in ("UNBEND_APPLY", "UNBEND_UNDO", "UNBEND_SPREAD")])
+@pytest.mark.parametrize("name", [n for n in NAMES if n not in ("UNBEND_APPLY", "UNBEND_UNDO", "UNBEND_SPREAD",
+                                                               "UNBEND_GROUPS", "UNBEND_GROUP_PREDICT")])
 def test_too_few_rows(name):
     y, x = [3.0, 5.0, "#N/A", None], [1.0, 2.0, 3.0, 4.0]
     out = call(name, *_args(name, y, x, None))
@@ -877,3 +895,70 @@ def test_an_interval_without_an_upper_end_is_written_in_words():
     x = [318.91929581379816, 137.7143033196798, 612.0950410005946]
     out = check_table(call("UNBEND_SUGGEST", y, x))  # call() refuses "to inf" in the note
     assert out[2][out[0].index("high 95%")] == ""  # the open end is a blank cell
+
+
+# ------------------------------------------------------------------- many groups
+
+def test_groups_match_engine(cars_data):
+    y, x = cars_data
+    g = [speed_band(s) for s in x]
+    out = check_table(call("UNBEND_GROUPS", y, x, g))
+    gf = unbend.fit_groups(np.array(y), np.array(x), np.array(g, dtype=object))
+    head = out[0]
+    first = dict(zip(head, out[1]))
+    assert first["group"] == "all groups" and first["rows used"] == 50 and first["rows skipped"] == 0
+    assert (first["y power"], first["x power"]) == (gf.y_power, gf.x_power)
+    assert first["y power estimate"] == approx(gf.common.y.estimate)
+    assert first["y power low 95%"] == approx(gf.common.y.low)
+    assert first["equal slopes p"] == approx(gf.equal_slopes_p)
+    assert first["slope"] == approx(gf.common_slope)
+    assert first["verdict"] == gf.explain()
+    rows = [dict(zip(head, r)) for r in out[2:]]
+    assert [r["group"] for r in rows] == list(gf.table["group"]) == ["brisk", "fast", "medium", "slow"]
+    for r, (_, t) in zip(rows, gf.table.iterrows()):
+        for col, eng in (("slope", "slope"), ("intercept", "intercept"), ("slope low 95%", "slope_low"),
+                         ("residual SD", "resid_sd"), ("curvature p", "curvature_p"),
+                         ("y power estimate", "own_y_power"), ("x power high 95%", "own_x_high")):
+            assert r[col] == ("" if not np.isfinite(t[eng]) else approx(t[eng])), col
+        assert r["wants another y power"] == ("yes" if t["own_y_differs"] else "no")
+        assert r["verdict"] == t["verdict"] and r["rows used"] == t["n"]
+
+
+def test_group_lines_in_cells_match_statsmodels(cars_data):
+    y, x = cars_data
+    g = [speed_band(s) for s in x]
+    out = call("UNBEND_GROUPS", y, x, g, 0.5, 1)
+    head = out[0]
+    for r in out[2:]:
+        d = dict(zip(head, r))
+        sel = np.array([b == d["group"] for b in g])
+        m = sm.OLS(np.sqrt(np.array(y)[sel]), sm.add_constant(np.array(x)[sel])).fit()  # source: statsmodels OLS
+        assert d["slope"] == approx(m.params[1], 1e-10) and d["intercept"] == approx(m.params[0], 1e-10)
+        assert d["slope high 95%"] == approx(m.conf_int(0.05)[1, 1], 1e-10)
+
+
+def test_group_predict_matches_engine(cars_data):
+    y, x = cars_data
+    g = [speed_band(s) for s in x]
+    out = check_table(call("UNBEND_GROUP_PREDICT", y, x, g, "fast", [20.0, 30.0]))
+    gf = unbend.fit_groups(np.array(y), np.array(x), np.array(g, dtype=object))
+    p = gf.predict([20.0, 30.0], group="fast")
+    assert column_of(out, PH["median"]) == [approx(v) for v in p["median"]]
+    assert column_of(out, PH["high"]) == [approx(v) for v in p["high"]]
+    assert column_of(out, PH["outside_range"]) == ["no", "yes"]  # 30 mph is beyond the fastest band's data
+    assert column_of(out, "group rows used") == [int(gf.row("fast")["n"])] * 2
+    one = call("UNBEND_GROUP_PREDICT", y, x, g, "fast", 20.0, None, None, "mean")
+    assert one == approx(p["mean"].iloc[0])
+
+
+def test_group_cells_say_what_is_wrong(cars_data):
+    y, x = cars_data
+    g = [speed_band(s) for s in x]
+    out = call("UNBEND_GROUP_PREDICT", y, x, g, "very fast", 20.0)
+    assert is_message(out) and "no group 'very fast'" in out
+    assert is_message(call("UNBEND_GROUP_PREDICT", y, x, g, None, 20.0))
+    assert is_message(call("UNBEND_GROUP_PREDICT", y, x, g, ["fast", "slow"], 20.0))
+    out = call("UNBEND_GROUPS", [3.0, 5.0, 6.0, 7.0], [1.0, 2.0, 3.0, 4.0], ["a", "a", "b", "b"])
+    assert is_message(out) and "no group has 3 or more usable rows" in out
+    out = call("UNBEND_GROUPS", y, x, g[:10])  # labels for the first ten rows only: the rest are skipped
+    assert not is_message(out) and out[1][out[0].index("rows skipped")] == 40

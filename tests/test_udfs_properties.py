@@ -227,6 +227,36 @@ def _values(v):
     return {"values": v}
 
 
+labels = st.one_of(st.sampled_from(["north", "south", "east", 1.0, 2.0, True, " north "]), any_cell)
+
+
+@st.composite
+def yxg(draw):
+    """y, x and group labels: often a few groups with enough rows to fit, sometimes anything."""
+    y, x = draw(paired())
+    n = len(y) if isinstance(y, list) else 1
+    kind = draw(st.sampled_from(["groups", "groups", "cells", "free"]))
+    if kind == "groups":
+        k = draw(st.integers(min_value=1, max_value=4))
+        g = [["north", "south", 3.0, True][i % k] for i in range(n)]
+        g = draw(numbers_with_junk(n, g))
+    elif kind == "cells":
+        g = draw(st.lists(labels, min_size=n, max_size=n))
+    else:
+        g = draw(shapes(any_cell))
+    if draw(st.booleans()) and isinstance(g, list):
+        g = [[v] for v in g]
+    return {"y": y, "x": x, "groups": g}
+
+
+@st.composite
+def yxg_new(draw):
+    args = draw(yxg())
+    args["group"] = draw(st.one_of(labels, st.lists(labels, max_size=2)))
+    args["new_x"] = draw(st.one_of(one_range(), st.just([10.0, 20.0]), positive))
+    return args
+
+
 STRATEGIES = {
     "UNBEND_POWER": with_options(y_maybe_x(), [("which", WHICH)]),
     "UNBEND_SUGGEST": y_maybe_x(),
@@ -249,6 +279,10 @@ STRATEGIES = {
                                                    ("y_start", START), ("x_start", START)]),
     "UNBEND_LIMITS": with_options(yx(), [("y_power", POWER), ("x_power", POWER), ("level", LEVEL),
                                          ("replicates", REPLICATES), ("y_start", START), ("x_start", START)]),
+    "UNBEND_GROUPS": with_options(yxg(), [("y_power", POWER), ("x_power", POWER), ("y_start", START),
+                                          ("x_start", START)]),
+    "UNBEND_GROUP_PREDICT": with_options(yxg_new(), [("y_power", POWER), ("x_power", POWER), ("what", WHAT),
+                                                     ("level", LEVEL), ("y_start", START), ("x_start", START)]),
 }
 
 
@@ -261,9 +295,14 @@ def test_every_function_has_a_strategy_for_each_argument():
 
 # ------------------------------------------------------------------------ the contract
 
+#: Functions whose tables repeat the user's group labels (which may read "nan" or "inf").
+_ECHO_LABELS = ("UNBEND_SPREAD", "UNBEND_GROUPS", "UNBEND_GROUP_PREDICT")
+
+
 def check_cell_value(out, name="", echo=None):
     """The output contract.  Text the code writes shows no 'nan'/'inf' either (group labels in
-    UNBEND_SPREAD are the user's own text, and ``echo`` is user text a result may repeat)."""
+    UNBEND_SPREAD and the group functions are the user's own text, and ``echo`` is user text a result may
+    repeat)."""
     if isinstance(out, str):
         if out.startswith("unbend:"):
             assert "\n" not in out and "\r" not in out, repr(out)
@@ -285,7 +324,7 @@ def check_cell_value(out, name="", echo=None):
                     assert math.isfinite(v), v
                 elif type(v) is str:
                     assert not v.startswith("unbend: unexpected"), v
-                    if name != "UNBEND_SPREAD":
+                    if name not in _ECHO_LABELS:
                         assert not _NUM_WORD.search(v), v
         return
     assert type(out) is float, (type(out), out)

@@ -11,8 +11,9 @@ lives in this package, starts without importing xlwings or the engine.
 from importlib import import_module as _import_module
 
 __all__ = ["CATEGORY", "FUNCTIONS", "UNBEND_APPLY", "UNBEND_EXPLAIN", "UNBEND_FIT", "UNBEND_FORMULA",
-           "UNBEND_INVERSE", "UNBEND_LIMITS", "UNBEND_POWER", "UNBEND_PREDICT", "UNBEND_RESIDUALS",
-           "UNBEND_SCAN", "UNBEND_SPREAD", "UNBEND_SUGGEST", "UNBEND_SYMMETRY", "UNBEND_UNDO"]
+           "UNBEND_GROUPS", "UNBEND_GROUP_PREDICT", "UNBEND_INVERSE", "UNBEND_LIMITS", "UNBEND_POWER",
+           "UNBEND_PREDICT", "UNBEND_RESIDUALS", "UNBEND_SCAN", "UNBEND_SPREAD", "UNBEND_SUGGEST",
+           "UNBEND_SYMMETRY", "UNBEND_UNDO"]
 
 
 def __getattr__(name):

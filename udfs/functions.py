@@ -32,7 +32,7 @@ from unbend.wording import fitted_rung_words
 from . import cells, intake
 from .formula import model_formula
 from .host import HostCells, HostProblem, HostReference, HostResult, SameCells
-from .wording import SCAN_HEADERS, inverse_headers, prediction_headers
+from .wording import ALL_GROUPS, SCAN_HEADERS, group_headers, inverse_headers, prediction_headers
 
 CATEGORY = "unbend"
 
@@ -473,6 +473,124 @@ def UNBEND_LIMITS(y, x, y_power=None, x_power=None, level=None, replicates=None,
     rows = [[k, rd.n_skipped, rd.skipped_words() if rd.n_skipped else d] if k == "rows skipped" else [k, v, d]
             for k, v, d in lim.rows()]
     return cells.table(["item", "value", "definition"], rows)
+
+
+# ------------------------------------------------------------------- many groups (issue 14)
+
+_G = "Range of group labels (site, machine, batch ...), same length as y; blank labels are skipped and counted."
+
+
+def _yxg(y, x, groups):
+    """y and one x column as numbers, group labels as they are, all brought to one length."""
+    yv = cells.to_numbers(y, "y")
+    xv = cells.to_numbers(x, "x")
+    labels = cells.to_labels(groups, "groups")
+    if yv.size == 0 or xv.size == 0 or not labels:
+        raise UnbendError("y, x and groups must each be a range with values; select the three columns.")
+    n = max(yv.size, xv.size, len(labels))  # trailing blanks were trimmed: back to one length
+    yv = np.concatenate([yv, np.full(n - yv.size, np.nan)])
+    xv = np.concatenate([xv, np.full(n - xv.size, np.nan)])
+    labels = np.array(list(labels) + [None] * (n - len(labels)), dtype=object)
+    return yv, xv, labels
+
+
+def _groups_fit(y, x, groups, y_power, x_power, y_start, x_start):
+    yv, xv, labels = _yxg(y, x, groups)
+    yp = cells.optional_number(y_power, "y_power")
+    xp = cells.optional_number(x_power, "x_power")
+    ys = cells.optional_number(y_start, "y_start", 0.0)
+    xs = cells.optional_number(x_start, "x_start", 0.0)
+    return _cache.get_or_compute(
+        ("groups", yv, xv, labels, yp, xp, ys, xs),
+        lambda: unbend.fit_groups(yv, xv, labels, y_power=yp, x_power=xp, y_start=ys, x_start=xs))
+
+
+_GROUP_COLS = ["group", "n", "skipped", "y_power", "x_power", "intercept", "slope", "slope_low", "slope_high",
+               "resid_sd", "r2", "curvature_p", "pattern_p", "spread_p", "normality_p", "own_y_power", "own_y_low",
+               "own_y_high", "own_y_differs", "own_x_power", "own_x_low", "own_x_high", "own_x_differs",
+               "equal_slopes_f", "equal_slopes_p", "verdict", "note"]
+
+
+def _all_groups_row(gf):
+    """The first row: every group together (common powers with their intervals, the one shared slope)."""
+    row = dict.fromkeys(_GROUP_COLS, "")
+    row.update(group=ALL_GROUPS, n=gf.n, skipped=gf.n_skipped, y_power=gf.y_power, x_power=gf.x_power,
+               slope=gf.common_slope, equal_slopes_f=gf.equal_slopes_f, equal_slopes_p=gf.equal_slopes_p,
+               verdict=gf.explain(),
+               note="powers for all groups together (blank estimate: the power was given); slope: the one slope "
+                    "every group would share, each keeping its own intercept")
+    for what, s in (("y", gf.common.y), ("x", gf.common.x)):
+        if s is not None:
+            row.update({f"own_{what}_power": s.estimate, f"own_{what}_low": s.low, f"own_{what}_high": s.high})
+    return [row[c] for c in _GROUP_COLS]
+
+
+def _cell_label(v):
+    """A group label as a cell value: numbers, text and TRUE/FALSE as they are; dates and times as ISO text."""
+    if isinstance(v, (str, bool, int, float)):
+        return v
+    if hasattr(v, "isoformat"):
+        return v.isoformat(sep=" ") if hasattr(v, "hour") and hasattr(v, "date") else v.isoformat()
+    return str(v)
+
+
+def _group_row(r):
+    row = {c: r[c] for c in _GROUP_COLS if c in r.index}
+    row["group"] = _cell_label(r["group"])
+    for c in ("own_y_differs", "own_x_differs"):
+        row[c] = ("yes" if r[c] else "no") if r["used"] and not np.isnan(r[c.replace("differs", "power")]) else ""
+    row["note"] = r["reason"] if not r["used"] else ""
+    row["equal_slopes_f"] = row["equal_slopes_p"] = ""
+    return [row[c] for c in _GROUP_COLS]
+
+
+@cell_function(y=_Y, x="Range of x values (the predictor), one column.", groups=_G,
+               y_power="Power for y for every group: 2, 1, 0.5, 0 (log), -0.5, -1 ... Blank: chosen from all groups "
+                       "together.",
+               x_power="Power for x for every group, same choices. Blank: chosen from all groups together.",
+               y_start=_YS, x_start=_XS)
+def UNBEND_GROUPS(y, x, groups, y_power=None, x_power=None, y_start=None, x_start=None):
+    """Table: one power for every group (with its interval), then each group's line, checks and own power."""
+    gf = _groups_fit(y, x, groups, y_power, x_power, y_start, x_start)
+    words = group_headers(gf.level)
+    body = [_all_groups_row(gf)] + [_group_row(r) for _, r in gf.table.iterrows()]
+    return cells.table([words[c] for c in _GROUP_COLS], body)
+
+
+@cell_function(y=_Y, x="Range of x values (the predictor), one column.", groups=_G,
+               group="The group to predict for: one cell holding its label.",
+               new_x="The x value(s) to predict at: one cell or a column.",
+               y_power=_YP.replace("suggested rung", "power chosen from all groups together"),
+               x_power=_XP.replace("suggested rung", "power chosen from all groups together"),
+               what='Optional: "median", "mean", "low" or "high" to get just those values; blank for the full table.',
+               level="Interval level, default 0.95 (95 also works).", y_start=_YS, x_start=_XS)
+def UNBEND_GROUP_PREDICT(y, x, groups, group, new_x, y_power=None, x_power=None, what=None, level=None,
+                         y_start=None, x_start=None):
+    """Predicted y in original units within one group, at the powers common to all groups: median, mean, intervals."""
+    lv = _level(level)
+    w = cells.optional_text(what, "what", ("median", "mean", "low", "high"), None)
+    label = cells.to_labels(group, "group")
+    if len(label) != 1 or label[0] is None:
+        raise UnbendError("group must be one cell holding a group label.")
+    gf = _groups_fit(y, x, groups, y_power, x_power, y_start, x_start)
+    f = gf.line(label[0])
+    nx = cells.to_numbers(new_x, "new_x")
+    if nx.size == 0:
+        raise UnbendError("new_x is empty; give the x value(s) to predict at.")
+    p = prediction_columns(f, nx, level=lv)
+    if w is not None:
+        vals = np.asarray(p[w])
+        return cells.scalar(vals[0]) if vals.size == 1 else cells.column(vals)
+    words = prediction_headers(lv)
+    row = gf.row(label[0])
+    header = ["new x"] + [words[c] for c in _PRED_COLS] + ["group", "y power", "x power", "group rows used",
+                                                            "group rows skipped", "rows skipped (all groups)"]
+    m = len(p["median"])
+    columns = [np.asarray(p["x"])] + [np.asarray(p[c]) for c in _PRED_COLS[:-2]]
+    columns += [np.where(p["outside_range"], "yes", "no"), np.asarray(p["note"], dtype=object)]
+    columns += [np.full(m, _cell_label(row["group"]), dtype=object), np.full(m, f.y_power), np.full(m, f.x_power),
+                np.full(m, int(row["n"])), np.full(m, int(row["skipped"])), np.full(m, gf.n_skipped)]
+    return cells.table(header, list(zip(*(c.tolist() for c in columns))))
 
 
 __all__ = sorted(FUNCTIONS) + ["FUNCTIONS", "CATEGORY", "CAUTION"]

@@ -38,6 +38,26 @@ def prediction_headers(level: float) -> dict:
     pct = f"{level * 100:g}%"
     return {k: v.format(pct=pct) for k, v in PREDICTION_HEADERS.items()}
 
+#: Columns of UNBEND_GROUPS: engine name -> header ({pct} is the level, e.g. 95%).
+GROUP_HEADERS = {
+    "group": "group", "n": "rows used", "skipped": "rows skipped", "y_power": "y power", "x_power": "x power",
+    "intercept": "intercept", "slope": "slope", "slope_low": "slope low {pct}", "slope_high": "slope high {pct}",
+    "resid_sd": "residual SD", "r2": "R\u00b2 re-expressed", "curvature_p": "curvature p",
+    "pattern_p": "pattern p", "spread_p": "spread p", "normality_p": "normality p",
+    "own_y_power": "y power estimate", "own_y_low": "y power low {pct}", "own_y_high": "y power high {pct}",
+    "own_y_differs": "wants another y power", "own_x_power": "x power estimate", "own_x_low": "x power low {pct}",
+    "own_x_high": "x power high {pct}", "own_x_differs": "wants another x power",
+    "equal_slopes_f": "equal slopes F", "equal_slopes_p": "equal slopes p", "verdict": "verdict", "note": "note",
+}
+
+#: The first row of UNBEND_GROUPS, for every group together.
+ALL_GROUPS = "all groups"
+
+
+def group_headers(level: float) -> dict:
+    pct = f"{level * 100:g}%"
+    return {k: v.format(pct=pct) for k, v in GROUP_HEADERS.items()}
+
 
 #: Columns of x read back from measured y: engine name -> header ({pct} is the level, e.g. 95%).
 INVERSE_HEADERS = {

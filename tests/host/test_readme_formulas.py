@@ -2,8 +2,8 @@
 
 The README's examples assume a table named ``Data`` (columns ``flow``, ``load``, ``count``,
 ``size``), a table named ``Assay`` (``result``, ``batch``), a table named ``Std`` (``conc``,
-``signal``), new x values in ``F2:F6``, re-expressed values in ``G2:G40`` and measured readings in
-``H2:J40``. Here those are filled with unbend's own invented demo data
+``signal``), a table named ``Net`` (``station``, ``flow``, ``load``), new x values in ``F2:F6``,
+re-expressed values in ``G2:G40``, a station name in ``H1`` and measured readings in ``H2:J40``. Here those are filled with unbend's own invented demo data
 (``unbend.demo_data``: seeded random numbers in scenarios of our own, not measurements). Each
 formula's arguments are resolved the way the program resolves them (a table column or a range is a
 Range, text in quotes is text, a number is a number, an empty argument is VBA's missing marker); the
@@ -26,7 +26,7 @@ from .harness import Host
 from .checks import as_com, check_com
 
 README = Path(__file__).resolve().parents[2] / "README.md"
-_ROW = re.compile(r"^\|\s*`(=UNBEND_[A-Z]+\(.*\))`\s*\|\s*(.*?)\s*\|\s*$")
+_ROW = re.compile(r"^\|\s*`(=UNBEND_[A-Z_]+\(.*\))`\s*\|\s*(.*?)\s*\|\s*$")
 
 
 def readme_examples():
@@ -57,7 +57,7 @@ def split_args(text: str) -> list:
 
 
 class Workbook:
-    """The README's workbook: tables Data, Assay and Std, F2:F6, G2:G40 and H2:J40 on one sheet."""
+    """The README's workbook: tables Data, Assay, Std and Net, F2:F6, G2:G40, H1 and H2:J40 on one sheet."""
 
     def __init__(self):
         self.host = Host()
@@ -84,6 +84,13 @@ class Workbook:
         samples = demo_data.detector_samples(n=39)  # readings in H2:J40, three per sample
         for j, letter in enumerate("HIJ", start=1):
             s.put_column(f"{letter}2", [float(v) for v in samples[f"reading_{j}"]])
+        net = demo_data.gauging_network()  # table Net in P1:R1201, a station name in H1
+        for letter, name, col in (("P", "station", "station"), ("Q", "flow", "discharge_m3s"),
+                                  ("R", "load", "sediment_t_per_day")):
+            vals = list(net[col]) if name == "station" else [float(v) for v in net[col]]
+            s.put_column(f"{letter}1", [name] + vals)
+            self.tables[("Net", name)] = f"{letter}2:{letter}{len(net) + 1}"
+        s.put_column("H1", ["G07"])
         s.put_column("F2", [5.0, 20.0, 50.0, 200.0, 600.0])  # new x values
         s.put_column("G2", [float(v) ** 0.5 for v in river["sediment_t_per_day"][:39]])  # re-expressed values
 
@@ -120,12 +127,12 @@ def workbook():
 
 
 def test_the_readme_has_an_example_of_every_function():
-    assert {re.match(r"=(UNBEND_[A-Z]+)", f).group(1) for f, _ in EXAMPLES} == set(U.FUNCTIONS)
+    assert {re.match(r"=(UNBEND_[A-Z_]+)", f).group(1) for f, _ in EXAMPLES} == set(U.FUNCTIONS)
 
 
 @pytest.mark.parametrize("formula, promise", EXAMPLES, ids=[f for f, _ in EXAMPLES])
 def test_readme_formula_through_xlwings(workbook, formula, promise):
-    name, inner = re.fullmatch(r"=(UNBEND_[A-Z]+)\((.*)\)", formula).groups()
+    name, inner = re.fullmatch(r"=(UNBEND_[A-Z_]+)\((.*)\)", formula).groups()
     HostReference = workbook.host.ns.module.host.HostReference
     specs = getattr(workbook.host.ns.module, name).__xlfunc__["args"]
     pairs = [workbook.resolve(a, specs[i]["options"].get("convert") is HostReference)
