@@ -870,8 +870,13 @@ def predict_censored(fit: CensoredFit, new_x, level: float = 0.95) -> pd.DataFra
     cols["mean_normal"] = mean.copy()
     low = fit.lowest_limit
     below = np.asarray(cols["median"] < low) if np.isfinite(low) else np.zeros(len(cols["note"]), dtype=bool)
+    from .predicting import mean_cautions, smeared_mean
+    with np.errstate(all="ignore"):  # the smearing mean's cautions do not apply to this mean: taken out
+        smear_words = mean_cautions(fit, cols["fitted"], cols["median"], smeared_mean(fit, cols["fitted"]))
     notes = []
     for i, nt in enumerate(cols["note"]):
+        if smear_words[i]:
+            nt = "; ".join(p for p in nt.split("; ") if p and p not in smear_words[i].split("; "))
         parts = [nt] if nt else []
         if below[i]:
             parts.append(f"the median is below the lowest limit ({low:.4g}): the data there were reported only as "

@@ -256,19 +256,21 @@ def _label_values(table):
 def test_cell_functions_read_text_cells_like_the_command():
     y, x = _survey()
     messy_y = [f"{v:.3f}".replace(".", ",") if i % 2 else v for i, v in enumerate(y)]  # decimal commas as text
-    messy_y[4] = "<0,5"
+    messy_y[4] = "<0,5"  # below a limit: fitted as censored at 0.5 (its decimal comma also settles the column)
     messy_x = list(x)
     messy_y.append(sum(y))  # a totals row at the bottom
     messy_x.append("Summe")
     out = U.UNBEND_FIT(messy_y, messy_x, 1, 1)
     d = _label_values(out)
-    keep = [i for i in range(len(y)) if i != 4]
-    A = np.column_stack([np.ones(len(keep)), np.array(x)[keep]])
-    coef = np.linalg.lstsq(A, np.array(y)[keep], rcond=None)[0]  # source: numpy.linalg.lstsq
-    assert d["intercept"] == pytest.approx(coef[0], rel=1e-9) and d["slope x"] == pytest.approx(coef[1], rel=1e-9)
-    assert d["rows used"] == len(keep) and d["rows skipped"] == 2
+    yy = np.array(y, dtype=float)
+    yy[4] = 0.5
+    mask = np.arange(len(y)) == 4
+    ref = unbend.fit(yy, np.array(x, dtype=float), y_power=1, x_power=1, censored=mask)
+    assert d["intercept"] == pytest.approx(ref.coef[0], rel=1e-9) and d["slope x"] == pytest.approx(ref.coef[1], rel=1e-9)
+    assert d["rows used"] == len(y) and d["rows skipped"] == 1
+    assert d["values below a limit, fitted as censored"] == 1 and d["values below a limit (censored)"] == 1
     assert d["values read from text"] == sum(1 for i in range(len(y)) if i % 2 and i != 4)
-    assert d["skipped: summary row"] == 1 and d["skipped: below a detection limit"] == 1
+    assert d["skipped: summary row"] == 1
 
 
 @pytest.mark.parametrize("name", ["UNBEND_SCAN", "UNBEND_PREDICT", "UNBEND_RESIDUALS", "UNBEND_SUGGEST"])

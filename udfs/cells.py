@@ -381,10 +381,12 @@ def _pad_reading(r, n):
                                censored=np.concatenate([r.censored, np.zeros(k, dtype=bool)]))
 
 
-def read_rows(y, x=None, *, y_name: str = "y", x_name: str = "x"):
+def read_rows(y, x=None, *, y_name: str = "y", x_name: str = "x", censor: bool = False):
     """Read y and x cells into rows used and rows skipped by reason (the cell functions' common first step).
 
-    A row of x given as a one-row block beside a row of y is read as the x column.
+    A row of x given as a one-row block beside a row of y is read as the x column. With ``censor=True``
+    (functions that fit a censored line) y values below a limit written with it ("<0.5") are used at their
+    limit and marked in ``y_censored`` (:func:`unbend.udfs.intake.censor_column`).
 
     Returns
     -------
@@ -394,6 +396,9 @@ def read_rows(y, x=None, *, y_name: str = "y", x_name: str = "x"):
     from .intake import combine
 
     yr = read(y, y_name)
+    if censor:
+        from .intake import censor_column
+        yr = censor_column(yr)
     if x is None:
         return combine(yr, [])
     xs = read_block(x, x_name)

@@ -88,6 +88,8 @@ def model_formula(fit, x_cell: str = "A2", what: str = "median") -> str:
         return "=" + invert_text(eta, yt.power, yt.start, yt.log10)
     if what != "mean":
         raise UnbendError("what must be median or mean.")
+    if getattr(fit, "n_censored", 0):
+        return _censored_mean_formula(fit, eta)
     terms = smearing_terms(fit)
     if terms is None:
         raise UnbendError(f"the mean has no short formula for y at {yt.label}; use what=median, or the portable "
@@ -110,3 +112,23 @@ def model_formula(fit, x_cell: str = "A2", what: str = "median") -> str:
             parts.append(("" if coef == 1.0 else f"{num(coef)}*") + f"POWER({eta},{k - j})")
     body = "+".join(parts)
     return f"={body}" + (f"-{num(yt.start)}" if yt.start else "")
+
+
+def _censored_mean_formula(fit, eta: str) -> str:
+    """The mean of a censored fit in built-in functions: the normal-theory expression where one is short.
+
+    Smearing needs every row's residual, and censored rows have none, so the mean is that of
+    :func:`unbend.censored.normal_mean`: raw y the line itself, log y the median times ``exp(s^2/2)``
+    (``s`` the SD the intervals use; base 10: ``exp((s ln 10)^2/2)``). Other powers have no short
+    formula (the back-transform is integrated numerically), so they are refused in words.
+    """
+    yt = fit.y_expr
+    s = float(fit.resid_sd)
+    if yt.power == 1.0:
+        return f"={eta}" + (f"-{num(yt.start)}" if yt.start else "")
+    if yt.power == 0.0:
+        factor = math.exp(0.5 * (s * math.log(10.0)) ** 2) if yt.log10 else math.exp(0.5 * s * s)
+        body = invert_text(eta, yt.power, 0.0, yt.log10)
+        return f"={body}*{num(factor)}" + (f"-{num(yt.start)}" if yt.start else "")
+    raise UnbendError(f"the mean of a fit with values below a limit has no short formula for y at {yt.label} (it is "
+                      "found by numerical integration); use what=median here, or UNBEND_PREDICT with what=mean.")

@@ -101,17 +101,34 @@ def cell_function(**arg_docs):
 
 # ----------------------------------------------------------------------------- inputs
 
-def _yx(y, x):
+def _yx(y, x, censor=False):
     """y as a vector and x as a block, rows used only, and the reading (reasons for the rows skipped).
 
+    With ``censor=True`` (the functions that fit the line) y values below a limit written with it ("<0.5")
+    are kept at their limit and marked in the reading's ``y_censored`` (see :func:`_censored`).
     The reading of equal cells is shared between calls (see ``SameCells``); the arrays returned are new.
     """
-    rows = _readings.get_or_read((y, x), lambda: _read_yx(y, x))
+    parts = (y, x, "censored") if censor else (y, x)
+    rows = _readings.get_or_read(parts, lambda: _read_yx(y, x, censor))
     return rows.y[rows.used], rows.X[rows.used], rows
 
 
-def _read_yx(y, x):
-    rows = cells.read_rows(y, x)
+def _censored(rows):
+    """The engine's ``censored=`` for the rows used: a boolean array, or None when no value is censored."""
+    return rows.y_censored[rows.used] if rows.n_censored else None
+
+
+def _censored_header(rows):
+    from .wording import CENSORED_ROW
+    return [CENSORED_ROW] if rows.n_censored else []
+
+
+def _censored_cells(rows):
+    return [rows.n_censored] if rows.n_censored else []
+
+
+def _read_yx(y, x, censor=False):
+    rows = cells.read_rows(y, x, censor=censor)
     if not len(rows.columns[0]) or not np.any(rows.columns[0].reasons != intake.BLANK):
         raise UnbendError("y is empty; select the y column.")
     if x is not None and not any(np.any(c.reasons != intake.BLANK) for c in rows.columns[1:]):
@@ -134,25 +151,26 @@ def _reading_cells(rows):
     return [sum(c.from_text for c in rows.columns), rows.skipped_words()]
 
 
-def _powers(yv, X, y_power, x_power, y_start, x_start):
+def _powers(yv, X, y_power, x_power, y_start, x_start, c=None):
     yp = cells.optional_number(y_power, "y_power")
     xp = cells.optional_number(x_power, "x_power")
     ys = cells.optional_number(y_start, "y_start", 0.0)
     xs = cells.optional_number(x_start, "x_start", 0.0)
     if yp is None or xp is None:
         yp, xp = _cache.get_or_compute(
-            ("pair", yv, X, yp, xp, ys, xs),
-            lambda: unbend.best_pair(yv, X, y_start=ys, x_start=xs, y_power=yp, x_power=xp))
+            ("pair", yv, X, yp, xp, ys, xs, c),
+            lambda: unbend.best_pair(yv, X, y_start=ys, x_start=xs, y_power=yp, x_power=xp, censored=c))
     return yp, xp, ys, xs
 
 
-def _fit(y, x, y_power, x_power, y_start, x_start, level=0.95):
-    """The fitted line and the reading of its cells."""
-    yv, X, rd = _yx(y, x)
-    yp, xp, ys, xs = _powers(yv, X, y_power, x_power, y_start, x_start)
+def _fit(y, x, y_power, x_power, y_start, x_start, level=0.95, censor=True):
+    """The fitted line and the reading of its cells (censored where y holds values below a limit)."""
+    yv, X, rd = _yx(y, x, censor)
+    c = _censored(rd)
+    yp, xp, ys, xs = _powers(yv, X, y_power, x_power, y_start, x_start, c)
     return _cache.get_or_compute(
-        ("fit", yv, X, yp, xp, ys, xs, level),
-        lambda: unbend.fit(yv, X, y_power=yp, x_power=xp, y_start=ys, x_start=xs, level=level)), rd
+        ("fit", yv, X, yp, xp, ys, xs, level, c),
+        lambda: unbend.fit(yv, X, y_power=yp, x_power=xp, y_start=ys, x_start=xs, level=level, censored=c)), rd
 
 
 def _level(level):
@@ -178,8 +196,10 @@ def UNBEND_POWER(y, x=None, which=None):
             raise UnbendError('which="x" needs an x range.')
         yv, _ = _y_only(y)
         return cells.scalar(_cache.get_or_compute(("sym", yv), lambda: unbend.symmetry_power(yv)).rung)
-    yv, X, _ = _yx(y, x)
-    yp, xp = _cache.get_or_compute(("pair", yv, X, None, None, 0.0, 0.0), lambda: unbend.best_pair(yv, X))
+    yv, X, rd = _yx(y, x, True)
+    c = _censored(rd)
+    yp, xp = _cache.get_or_compute(("pair", yv, X, None, None, 0.0, 0.0, c),
+                                   lambda: unbend.best_pair(yv, X, censored=c))
     return cells.scalar(yp if w == "y" else xp)
 
 
@@ -198,29 +218,35 @@ def UNBEND_SUGGEST(y, x=None):
         yv, rd = _y_only(y)
         s = _cache.get_or_compute(("sym", yv), lambda: unbend.symmetry_power(yv))
         return cells.table(_SUGGEST_HEADER, [_suggest_row(s, rd)])
-    yv, X, rd = _yx(y, x)
-    yp, xp = _cache.get_or_compute(("pair", yv, X, None, None, 0.0, 0.0), lambda: unbend.best_pair(yv, X))
-    sy = _cache.get_or_compute(("sy", yv, X, xp), lambda: unbend.suggest_power(yv, X, x_power=xp))
-    sx = _cache.get_or_compute(("sx", yv, X, yp), lambda: unbend.suggest_x_power(yv, X, y_power=yp))
-    table = _cache.get_or_compute(("scan", yv, X, 0.0, 0.0), lambda: unbend.scan(yv, X))
+    yv, X, rd = _yx(y, x, True)
+    c = _censored(rd)
+    yp, xp = _cache.get_or_compute(("pair", yv, X, None, None, 0.0, 0.0, c),
+                                   lambda: unbend.best_pair(yv, X, censored=c))
+    sy = _cache.get_or_compute(("sy", yv, X, xp, c), lambda: unbend.suggest_power(yv, X, x_power=xp, censored=c))
+    sx = _cache.get_or_compute(("sx", yv, X, yp, c), lambda: unbend.suggest_x_power(yv, X, y_power=yp, censored=c))
+    table = _cache.get_or_compute(("scan", yv, X, 0.0, 0.0, c), lambda: unbend.scan(yv, X, censored=c))
     rows = [_suggest_row(sy, rd), _suggest_row(sx, rd)]
     note = _SUGGEST_HEADER.index("note")
     rows[0][note] = f"(given x at power {xp:g}) {rows[0][note]} {fitted_rung_words(sy, yp, xp, table)}"
     rows[1][note] = f"(given y at power {yp:g}) {rows[1][note]} {fitted_rung_words(sx, xp, yp, table)}"
     rows.append(["scan's best pair", "", "", "", "", f"y {unbend.rung_label(yp)}, x {unbend.rung_label(xp)}",
                  "", "", "the pair UNBEND_FIT and UNBEND_PREDICT use when the powers are left blank"])
-    return cells.table(_SUGGEST_HEADER, rows)
+    if rd.n_censored:
+        rows = [r + [""] * (len(_SUGGEST_HEADER) - len(r)) + _censored_cells(rd) for r in rows]
+    return cells.table(_SUGGEST_HEADER + _censored_header(rd), rows)
 
 
 @cell_function(y=_Y, x=_X, y_start=_YS, x_start=_XS)
 def UNBEND_SCAN(y, x, y_start=None, x_start=None):
     """Table: every y rung x x rung, best first, with likelihood, curvature, spread and normality checks and a verdict."""
-    yv, X, rd = _yx(y, x)
+    yv, X, rd = _yx(y, x, True)
     ys = cells.optional_number(y_start, "y_start", 0.0)
     xs = cells.optional_number(x_start, "x_start", 0.0)
-    t = _cache.get_or_compute(("scan", yv, X, ys, xs), lambda: unbend.scan(yv, X, y_start=ys, x_start=xs))
-    header = [SCAN_HEADERS[c] for c in t.columns] + ["rows skipped"] + _reading_header()
-    extra = [rd.n_skipped] + _reading_cells(rd)
+    cm = _censored(rd)
+    t = _cache.get_or_compute(("scan", yv, X, ys, xs, cm),
+                              lambda: unbend.scan(yv, X, y_start=ys, x_start=xs, censored=cm))
+    header = [SCAN_HEADERS[c] for c in t.columns] + ["rows skipped"] + _reading_header() + _censored_header(rd)
+    extra = [rd.n_skipped] + _reading_cells(rd) + _censored_cells(rd)
     body = [list(r) + extra for r in t.itertuples(index=False)]
     return cells.table(header, body)
 
@@ -271,19 +297,26 @@ def UNBEND_PREDICT(y, x, new_x, y_power=None, x_power=None, what=None, level=Non
         nx = nx.T
     if nx.shape[0] == 0:
         raise UnbendError("new_x is empty; give the x value(s) to predict at.")
-    p = prediction_columns(f, nx, level=lv)
+    cens = bool(getattr(f, "n_censored", 0))
+    p = f.predict(nx, level=lv) if cens else prediction_columns(f, nx, level=lv)
     if w is not None:
         vals = np.asarray(p[w])
         return cells.scalar(vals[0]) if vals.size == 1 else cells.column(vals)
     xcols = list(f.x_names) if k > 1 else ["new x"]
     words = prediction_headers(lv)
+    if cens:
+        from .wording import CENSORED_MEAN_HEADER
+        words["mean"] = CENSORED_MEAN_HEADER
     header = (xcols + [words[c] for c in _PRED_COLS] + ["y power", "x power", "rows used", "rows skipped"]
-              + _reading_header())
+              + _reading_header() + _censored_header(rd)
+              + (["median below the lowest limit"] if cens else []))
     m = len(p["median"])
     columns = [np.asarray(p[c]) for c in f.x_names] + [np.asarray(p[c]) for c in _PRED_COLS[:-2]]
     columns += [np.where(p["outside_range"], "yes", "no"), np.asarray(p["note"], dtype=object)]
     columns += [np.full(m, f.y_power), np.full(m, f.x_power), np.full(m, f.n), np.full(m, rd.n_skipped)]
-    columns += [np.full(m, v, dtype=object) for v in _reading_cells(rd)]
+    columns += [np.full(m, v, dtype=object) for v in _reading_cells(rd) + _censored_cells(rd)]
+    if cens:
+        columns.append(np.where(np.asarray(p["below_limit"]), "yes", "no"))
     return cells.table(header, list(zip(*(c.tolist() for c in columns))))
 
 
@@ -297,11 +330,12 @@ def UNBEND_RESIDUALS(y, x, y_power=None, x_power=None, y_start=None, x_start=Non
     xre = [f"{nm}_re" for nm in f.x_names]
     header = (["row"] + [f"{nm} re-expressed" if len(f.x_names) > 1 else "x re-expressed" for nm in f.x_names]
               + ["y re-expressed", "fitted", "residual", "standardized residual", "flag", "y power", "x power",
-                 "rows skipped"] + _reading_header())
-    extra = _reading_cells(rd)
+                 "rows skipped"] + _reading_header() + _censored_header(rd))
+    extra = _reading_cells(rd) + _censored_cells(rd)
+    below = r["censored"].to_numpy() if "censored" in r.columns else np.zeros(n, dtype=bool)
     body = []
     for i in range(n):
-        flags = []
+        flags = ["below a limit (no residual: y is only known to lie below it)"] if below[i] else []
         if abs(r["standardized"].iloc[i]) > 2:
             flags.append("large residual")
         if r["cooks_distance"].iloc[i] > 4.0 / n:
@@ -416,7 +450,7 @@ def _replicates(value, default: int = 1):
 
 def _calibration_fit(y, x, y_power, x_power, y_start, x_start):
     """The calibration line (one x) and the reading of the standards' cells."""
-    f, rd = _fit(y, x, y_power, x_power, y_start, x_start, 0.95)
+    f, rd = _fit(y, x, y_power, x_power, y_start, x_start, 0.95, censor=False)
     if len(f.x_names) != 1:
         raise UnbendError("reading x back from y needs one x column; select a single x column.")
     return f, rd

@@ -44,7 +44,8 @@ numpy scalars and arrays, pandas Series.
 * Cell errors (``#N/A``, ``#DIV/0!``, ``Err:502`` ...) are "error value".
 * Values below a detection limit (``<0.5``, ``< 0,5``, ``ND``, ``n.d.``,
   ``<LOD`` ...) are their own category, with the limit when one is written;
-  they are skipped for now and marked ``censored`` for a later censored fit.
+  they are skipped, except where a censored fit reads y (:func:`censor_column`): there a value whose limit
+  is known (written in the cell, or given by a limit column) is used at its limit and marked ``censored``.
   ``>2000`` is "above a reporting limit".
 * Summary labels (total, subtotal, sum, mean, average, count, min, max and
   their common European equivalents: Summe, Gesamt, Mittelwert, moyenne,
@@ -77,6 +78,7 @@ from unbend import UnbendError
 
 __all__ = [
     "ColumnReading", "RowsReading", "ReadingRefused", "DecimalLeftOpen", "read_column", "read_flat", "combine",
+    "censor_column",
     "is_summary_label", "looks_like_unit", "reason_word",
     "USED", "BLANK", "ERROR", "TEXT", "BOOL", "LIMIT", "ABOVE", "SUMMARY", "FILTERED", "HIDDEN",
     "NO_VALUE", "NOT_FINITE", "DATE_AMONG_NUMBERS", "NUMBER_AMONG_DATES", "OTHER_UNIT", "HEADER",
@@ -246,6 +248,8 @@ class ColumnReading:
         ``(code, index, shown text)`` for a few cells of each reason (index counted from 0).
     text_examples : tuple
         ``(index, shown text, value)`` for a few values read from text.
+    for_censored_fit : bool
+        True after :func:`censor_column`: cells below a known limit are used, at their limit, and ``censored``.
     """
 
     name: str
@@ -262,6 +266,7 @@ class ColumnReading:
     censored: np.ndarray = field(default=None, repr=False)
     examples: tuple = ()
     text_examples: tuple = ()
+    for_censored_fit: bool = False
 
     def __len__(self) -> int:
         return int(self.values.shape[0])
@@ -315,6 +320,9 @@ class RowsReading:
         True for rows skipped only because y is below a detection limit (x usable).
     summary_note : tuple
         ``(row number, what)`` for summary rows found by their values ("equals the sum of the rows above").
+    y_censored : numpy.ndarray or None
+        When y was read for a censored fit (:func:`censor_column`): True for rows used whose y is an upper
+        limit (``y`` holds the limit). ``None`` when values below a limit are skipped.
     """
 
     y: np.ndarray
@@ -327,6 +335,7 @@ class RowsReading:
     examples: tuple
     censored: np.ndarray
     summary_note: tuple = ()
+    y_censored: np.ndarray = field(default=None, repr=False)
 
     @property
     def n_used(self) -> int:
@@ -351,9 +360,18 @@ class RowsReading:
         parts = [f"{n} {reason_word(k)}" for k, n in self.counts().items()]
         return ", ".join(parts) if parts else "none"
 
+    @property
+    def n_censored(self) -> int:
+        """Rows used whose y is below a detection limit (fitted as censored); 0 when none or not asked for."""
+        return 0 if self.y_censored is None else int(self.y_censored.sum())
+
     def table_rows(self) -> list:
-        """(label, value) pairs for a cell table: values read from text, and rows skipped by reason."""
+        """(label, value) pairs for a cell table: values read from text, values below a limit fitted as censored
+        (when any), and rows skipped by reason."""
         out = [("values read from text", sum(c.from_text for c in self.columns))]
+        if self.n_censored:
+            from .wording import CENSORED_ROW
+            out.append((CENSORED_ROW, self.n_censored))
         for k, n in self.counts().items():
             out.append((f"skipped: {reason_word(k)}", n))
         return out
@@ -370,8 +388,8 @@ class RowsReading:
 
     def lines(self, where: str = "row") -> list:
         """Sentences for messages and summaries: skipped rows by reason with examples, text read, units, dates."""
-        from .wording import LIMIT_ACTION, reading_lines
-        return reading_lines(self, where, LIMIT_ACTION)
+        from .wording import LIMIT_ACTION, LIMIT_ACTION_CENSORED, reading_lines
+        return reading_lines(self, where, LIMIT_ACTION if self.y_censored is None else LIMIT_ACTION_CENSORED)
 
 
 # ----------------------------------------------------------------------------- flattening
@@ -1111,8 +1129,79 @@ def combine(y: ColumnReading, xs=(), *, row_reasons=None, row_numbers=None, row_
     cens = (reasons == LIMIT) & _pad(y.censored, n, False)
     for c in xs:
         cens &= _pad(c.reasons, n, BLANK) == USED
+    y_cens = None
+    if y.for_censored_fit:
+        y_cens = used & _pad(y.censored, n, False) & (_pad(y.reasons, n, BLANK) == USED)
     return RowsReading(y=Y, X=X, used=used, reasons=reasons, row_numbers=rows, columns=tuple(cols),
-                       by_column=by_column, examples=tuple(examples), censored=cens, summary_note=tuple(notes))
+                       by_column=by_column, examples=tuple(examples), censored=cens, summary_note=tuple(notes),
+                       y_censored=y_cens)
+
+
+# ----------------------------------------------------------------------------- values below a limit, kept
+#: Marks in a qualifier column: the value beside is an upper limit / measured / a lower limit.
+_LESS_MARKS = frozenset({"<", "<=", "≤", "&lt;", "&lt;="})
+_PLAIN_MARKS = frozenset({"", "="})
+_MORE_MARKS = frozenset({">", ">=", "≥", "&gt;", "&gt;="})
+
+
+def censor_column(y: ColumnReading, *, limits=None, qualifiers=None, qualifier_name: str = "qualifier"
+                  ) -> ColumnReading:
+    """y read for a censored fit: values below a detection limit are kept as censored values at their limit.
+
+    Parameters
+    ----------
+    y : ColumnReading
+        The y column as :func:`read_column` or :func:`read_flat` read it.
+    limits : array of float, optional
+        One limit per cell (NaN where none), from a limit column: the limit of a value written without one
+        (``ND``, ``not detected``). A limit written in the cell itself (``<0.5``) is kept.
+    qualifiers : sequence, optional
+        One mark per cell from a qualifier column beside a plain value column: ``<`` (or ``<=``, ``≤``) makes the
+        value beside it a limit; blank or ``=`` leaves it measured; ``>`` is above a reporting limit (skipped);
+        any other mark skips the row as "not a number", since its meaning is not known (shown as an example).
+    qualifier_name : str
+        The qualifier column's name, for the examples.
+
+    Returns
+    -------
+    ColumnReading
+        Cells below a limit whose limit is known become used cells with ``values`` = the limit and
+        ``censored`` True; cells below a limit without a known limit stay skipped ("below a detection
+        limit"). :func:`combine` then gives a :class:`RowsReading` whose ``y_censored`` marks the censored
+        rows used. Censoring applies to y only: x values below a limit stay skipped.
+    """
+    n = len(y)
+    values = y.values.copy()
+    reasons = y.reasons.copy()
+    lim = y.limits.astype(float).copy()
+    cens = np.zeros(n, dtype=bool)
+    extra = []
+    if limits is not None:
+        lv = _pad(np.asarray(limits, dtype=float).reshape(-1), n, np.nan)
+        fill = (reasons == LIMIT) & np.isnan(lim)
+        lim[fill] = lv[fill]
+    if qualifiers is not None:
+        q = list(qualifiers)[:n] + [None] * max(0, n - len(qualifiers))
+        for i, mark in enumerate(q):
+            m = "" if mark is None or (isinstance(mark, float) and mark != mark) else " ".join(str(mark).split())
+            if reasons[i] != USED or m in _PLAIN_MARKS:
+                continue
+            if m in _LESS_MARKS:
+                cens[i] = True
+                lim[i] = values[i]
+            else:
+                reasons[i] = ABOVE if m in _MORE_MARKS else TEXT
+                values[i] = np.nan
+                extra.append((int(reasons[i]), i, f"{qualifier_name} {_shown(m)}"))
+    take = (reasons == LIMIT) & np.isfinite(lim)
+    values[take] = lim[take]
+    reasons[take] = USED
+    cens |= take
+    lim[~cens] = np.nan
+    ex = tuple(e for e in y.examples if reasons[e[1]] != USED) + tuple(extra)
+    import dataclasses
+    return dataclasses.replace(y, values=values, reasons=reasons, limits=lim, censored=cens, examples=ex,
+                               for_censored_fit=True)
 
 
 def _example_cell(i, code, cols, rs, vals, shown):

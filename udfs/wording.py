@@ -98,9 +98,22 @@ REASONS = {
     "header": "header or units cell",
 }
 
-#: What unbend does with values below a detection limit (until they are fitted as censored values).
-LIMIT_ACTION = ("unbend leaves them out of this fit for now (it does not replace them by zero, by the limit or by "
-                "half of it); a fit that treats them as values below their limit is planned")
+#: What a calculation that does not fit censored values does with values below a detection limit.
+LIMIT_ACTION = ("this calculation leaves them out (it does not replace them by zero, by the limit or by half of it); "
+                "the line itself (UNBEND_FIT, UNBEND_PREDICT and the other functions that fit it, and unbend "
+                "report) uses them as values somewhere below their limit")
+
+#: What a censored fit does with the values below a limit it still cannot use.
+LIMIT_ACTION_CENSORED = ("they are left out (not replaced by zero, by the limit or by half of it): a value below a "
+                         "limit is fitted as censored only when it is y and its limit is known (written in the cell "
+                         "as <0.5, or given by a limit column, --limit-column); values below a limit in x are not "
+                         "used, since censoring applies to y only")
+
+#: The mean column's header for a censored fit (no smearing: censored rows have no residuals).
+CENSORED_MEAN_HEADER = "mean (average y, normal theory)"
+
+#: The table row (and column) that counts values fitted as censored.
+CENSORED_ROW = "values below a limit, fitted as censored"
 
 #: What to do about a formula saved without its value.
 NO_VALUE_ACTION = ("the file was written by a program that does not calculate; open it in a spreadsheet program "
@@ -113,6 +126,17 @@ DECIMAL_HOW = {"values": "decided from the column's own values", "delimiter": "d
 
 def _count(n: int, one: str, many: str | None = None) -> str:
     return f"{n} {one if n == 1 else (many or one + 's')}"
+
+
+def censored_sentence(rows, where: str = "row") -> str:
+    """How many y values below a limit are fitted as censored, with a few examples and their limits."""
+    import numpy as np
+    idx = np.flatnonzero(rows.y_censored)
+    ex = ", ".join(f"{where} {int(rows.row_numbers[i])} below {rows.y[i]:.4g}" for i in idx[:3])
+    more = ", ..." if idx.size > 3 else ""
+    return (f"{_count(idx.size, 'value')} of y below a detection limit ({ex}{more}) "
+            f"{'is' if idx.size == 1 else 'are'} fitted as censored: each counts as lying somewhere below its "
+            "limit (maximum likelihood), not as the limit, half of it or zero.")
 
 
 def reading_lines(rows, where: str = "row", limit_action: str = LIMIT_ACTION) -> list:
@@ -134,6 +158,8 @@ def reading_lines(rows, where: str = "row", limit_action: str = LIMIT_ACTION) ->
             more = ", ..." if k > len(ex) else ""
             parts.append(f"{reason_word(code)}: {k}" + (f" ({shown}{more})" if shown else ""))
         out.append(f"Skipped {_count(rows.n_skipped, 'row')} of {rows.used.size}: " + "; ".join(parts) + ".")
+    if getattr(rows, "n_censored", 0):
+        out.append(censored_sentence(rows, where))
     if counts.get(LIMIT):
         out.append(f"{_count(counts[LIMIT], 'row')} below a detection limit: {limit_action}.")
     if counts.get(NO_VALUE):
