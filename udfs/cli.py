@@ -103,7 +103,8 @@ def _print_summary(a):
     cols = ["rank", "y_rung", "x_rung", "loglik", "curvature_p", "spread_p", "r2", "verdict"]
     with pd.option_context("display.width", 200, "display.max_colwidth", 48):
         print(a.scan.head(5)[cols].to_string(index=False, float_format=lambda v: f"{v:.4g}"))
-    print("\nPredictions in original units (median, smeared mean, prediction interval):")
+    mean_words = "normal-theory mean" if getattr(a.fit, "n_censored", 0) else "smeared mean"
+    print(f"\nPredictions in original units (median, {mean_words}, prediction interval):")
     p = a.predictions
     show = list(a.x_names) + ["median", "mean", "low", "high", "outside_range"]
     print(p[show].to_string(index=False, float_format=lambda v: f"{v:.4g}"))
@@ -119,7 +120,9 @@ def read_report_data(args, data: str):
     from .files import read_data
 
     reading = read_data(data, args.y, args.x, sheet=args.sheet, header_row=args.header_row, decimal=args.decimal,
-                        hidden=args.hidden or "auto", groups=args.groups)
+                        hidden=args.hidden or "auto", groups=args.groups, censor=True,
+                        limit_column=getattr(args, "limit_column", None),
+                        qualifier_column=getattr(args, "qualifier_column", None))
     labels = [reading.y_label, *reading.x_labels]
     seen = set()
     for i, (lab, letter) in enumerate(zip(labels, reading.letters)):
@@ -141,6 +144,17 @@ def add_reading_options(r) -> None:
     r.add_argument("--hidden", choices=["use", "skip"],
                    help="hidden rows: use or skip them all (default: rows hidden by a filter are skipped, rows "
                         "hidden by hand are used)")
+    add_limit_options(r)
+
+
+def add_limit_options(r) -> None:
+    """Options for y values below a detection limit (fitted as censored values)."""
+    r.add_argument("--limit-column", metavar="COLUMN",
+                   help="a column holding the detection limit of each row: a y cell written as ND or 'not "
+                        "detected' is fitted as below that limit (y cells such as <0.5 carry their own limit)")
+    r.add_argument("--qualifier-column", metavar="COLUMN",
+                   help="a column of '<' marks beside a plain y column: a '<' makes the y value beside it a "
+                        "detection limit (blank or '=' means measured)")
 
 
 # ----------------------------------------------------------------------------- report: reading the data
@@ -193,6 +207,12 @@ def _out_path(args, data: str) -> str:
     return out
 
 
+def _censored_of(reading):
+    """Flags for the rows used whose y is below a detection limit, or None."""
+    rows = reading.rows
+    return None if rows.y_censored is None else rows.y_censored[rows.used]
+
+
 def cmd_report(args) -> int:
     from .outputs import ReportFiles
     from .plots import PLOT_FILES
@@ -206,7 +226,7 @@ def cmd_report(args) -> int:
 
         reading, df, ycol, xcols, gcol = _read_input(args, prog)
         prog.step("choosing powers and scanning the rungs")
-        a = analyse(df, ycol, xcols, gcol, source=reading.source, **choices)
+        a = analyse(df, ycol, xcols, gcol, source=reading.source, censored=_censored_of(reading), **choices)
         a.reading = reading
         prog.step("writing the report workbook")
         write_report(a, files.staged_workbook)

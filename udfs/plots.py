@@ -51,7 +51,8 @@ def plot_data(a) -> dict:
         if row.rank == 1:
             mark[i][j] = "best"
     col = lambda c: res[c].to_numpy(dtype=float)  # noqa: E731
-    return {
+    extra = _censored_plot_data(a, res)
+    return extra | {
         "run_id": a.run_id, "n": int(f.n), "one_x": len(f.x_names) == 1,
         "x_name": x0, "y_name": a.y_name,
         "x_label_re": f"{f.x_expr.label} of {x0}", "y_label_re": f"{f.y_expr.label} of {a.y_name}",
@@ -60,6 +61,30 @@ def plot_data(a) -> dict:
         "scan_grid": grid, "scan_marks": mark,
         "scan_y_labels": [unbend.rung_label(v) for v in yr], "scan_x_labels": [unbend.rung_label(v) for v in xr],
     }
+
+
+def _censored_plot_data(a, res) -> dict:
+    """Censored rows (drawn as open markers at their limit with a downward tick) and the half-limit line."""
+    if "censored" not in res or not res["censored"].any():
+        return {}
+    f = a.fit
+    out = {"censored": res["censored"].to_numpy(dtype=bool), "n_censored": int(res["censored"].sum())}
+    h = getattr(a, "half_limit", None)
+    if h is not None and len(f.x_names) == 1:
+        # the half-limit line at the same powers, on the re-expressed scale of the censored fit's axes
+        xr = res[f"{f.x_names[0]}_re"].to_numpy(dtype=float)
+        out["half_x_re"] = xr
+        out["half_fitted"] = h.coef[0] + h.coef[1] * xr
+    return out
+
+
+def _open_at_limit(ax, x, y, color):
+    """Values below a limit: an open marker at the limit with a short tick pointing down."""
+    ax.scatter(x, y, s=30, facecolors="none", edgecolors=color, linewidths=1.1, label="below a limit (at the limit)")
+    lo, hi = ax.get_ylim()
+    tick = 0.04 * (hi - lo)
+    ax.vlines(x, y - tick, y, color=color, lw=1.1)
+    ax.scatter(x, y - tick, marker="v", s=12, color=color, linewidths=0)
 
 
 def draw(d: dict, folder) -> list:
@@ -86,15 +111,36 @@ def draw(d: dict, folder) -> list:
         atomic_save(lambda t: fig.savefig(t, dpi=110, format="png", metadata=meta), p)
         paths.append(p)
 
+    cz = d.get("censored")
+    if cz is not None:  # measured values as dots, values below a limit drawn at the limit, open, pointing down
+        keep = ~cz
+        dots_m = dict(dots, label="measured")
+        d = dict(d, x_m=d["x"][keep], y_m=d["y"][keep], x_re_m=d["x_re"][keep], y_re_m=d["y_re"][keep])
     fig, ax = subplots(1, 2, figsize=(10, 4.2))
-    ax[0].scatter(d["x"], d["y"], **dots)
+    if cz is not None:
+        ax[0].scatter(d["x_m"], d["y_m"], **dots_m)
+        _open_at_limit(ax[0], d["x"][cz], d["y"][cz], "#7a4f9a")
+        ax[0].legend(fontsize=8)
+    else:
+        ax[0].scatter(d["x"], d["y"], **dots)
     ax[0].set_xlabel(d["x_name"])
     ax[0].set_ylabel(d["y_name"])
     ax[0].set_title("Before: original units")
-    ax[1].scatter(d["x_re"], d["y_re"], **dots)
+    if cz is not None:
+        ax[1].scatter(d["x_re_m"], d["y_re_m"], **dots)
+    else:
+        ax[1].scatter(d["x_re"], d["y_re"], **dots)
     if d["one_x"]:
         order = np.argsort(d["x_re"])
-        ax[1].plot(d["x_re"][order], d["fitted"][order], color="#c8553d")
+        ax[1].plot(d["x_re"][order], d["fitted"][order], color="#c8553d",
+                   label="censored fit (maximum likelihood)" if cz is not None else None)
+    if cz is not None:
+        _open_at_limit(ax[1], d["x_re"][cz], d["y_re"][cz], "#7a4f9a")
+        if "half_fitted" in d:
+            o = np.argsort(d["half_x_re"])
+            ax[1].plot(d["half_x_re"][o], d["half_fitted"][o], color="#888888", ls="--",
+                       label="half the limit substituted (comparison only: biased)")
+        ax[1].legend(fontsize=7)
     ax[1].set_xlabel(d["x_label_re"])
     ax[1].set_ylabel(d["y_label_re"])
     ax[1].set_title("After re-expression, with the fitted line")
@@ -103,6 +149,9 @@ def draw(d: dict, folder) -> list:
 
     fig, ax = subplots(figsize=(6.5, 4.2))
     ax.scatter(d["fitted"], d["residual"], **dots)
+    if cz is not None:
+        ax.text(0.01, 0.01, f"{d['n_censored']} values below a limit have no residual and are not drawn",
+                transform=ax.transAxes, fontsize=8, color="#7a4f9a")
     ax.axhline(0, color="#888888", lw=1)
     ax.set_xlabel("fitted value (re-expressed scale)")
     ax.set_ylabel("residual")

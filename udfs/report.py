@@ -50,6 +50,11 @@ class Analysis:
     reading: object = None
     #: Written into the workbook's properties and every plot, so files of one run can be told apart from another's.
     run_id: str = field(default_factory=lambda: uuid.uuid4().hex)
+    #: True for rows whose y is below a detection limit (y holds the limit); None when no value is censored.
+    censored: np.ndarray | None = None
+    #: For comparison only: the least-squares line at the same powers with each censored value replaced by half
+    #: its limit (None without censored values, or when that line cannot be fitted).
+    half_limit: object = None
 
 
 def _numbers(series) -> np.ndarray:
@@ -122,7 +127,7 @@ def _or(items) -> str:
 # ----------------------------------------------------------------------------- the analysis
 def analyse(df: pd.DataFrame, y_col: str, x_cols: list, groups_col: str | None = None, *,
             source: str = "", invented: bool = False, y_power=None, x_power=None, y_start: float = 0.0,
-            x_start: float = 0.0, level: float = 0.95) -> Analysis:
+            x_start: float = 0.0, level: float = 0.95, censored=None) -> Analysis:
     """Run the engine over the chosen columns: suggestions, scan, fit at the best pair, predictions.
 
     ``y_power`` / ``x_power`` pin a power (None: the pair the scan ranks
@@ -130,6 +135,8 @@ def analyse(df: pd.DataFrame, y_col: str, x_cols: list, groups_col: str | None =
     ``level`` is the level of every interval. Zeros and negatives never stop
     the analysis: the scan ranks only the rungs the data allow, and the notes
     say which were left out and which start would bring them back.
+    ``censored`` (one flag per row of ``df``) marks y values below a detection limit, held at their limit:
+    every step then uses the censored likelihood, and a half-limit line is kept for comparison.
     """
     n = len(df)
     y = cells.to_numbers(list(df[y_col]), y_col)
@@ -155,29 +162,35 @@ def analyse(df: pd.DataFrame, y_col: str, x_cols: list, groups_col: str | None =
         notes.append(_left_out(yu, [p for p in y_out if p in base], y_start, yname, "--y-start"))
     if x_out:
         notes.append(_left_out(xu, [p for p in x_out if p in base], x_start, xname, "--x-start"))
-    scan = unbend.scan(y, X, y_start=y_start, x_start=x_start, rungs=y_ok, x_rungs=x_ok)
+    c = _censored_rows(censored, y.shape[0])
+    scan = unbend.scan(y, X, y_start=y_start, x_start=x_start, rungs=y_ok, x_rungs=x_ok, censored=c)
     yp, xp = unbend.best_pair(y, X, y_start=y_start, x_start=x_start, y_power=y_power, x_power=x_power,
-                              table=scan)
+                              table=scan, censored=c)
     sy = sx = None
     if yu.size and np.all(yu + y_start > 0):
-        sy = unbend.suggest_power(y, X, x_power=xp, level=level, y_start=y_start, x_start=x_start)
+        sy = unbend.suggest_power(y, X, x_power=xp, level=level, y_start=y_start, x_start=x_start, censored=c)
     else:
         notes.append(f"Power for {yname}: not estimated, because the Box-Cox likelihood needs every {yname} above 0 "
                      f"and {_what_is_below(yu, y_start, yname)}. With --y-start {_nice_start(yu, y_start):g} it is "
                      "estimated; meanwhile the scan ranks the rungs these data allow.")
     if xu.size and np.all(xu + x_start > 0):
-        sx = unbend.suggest_x_power(y, X, y_power=yp, level=level, y_start=y_start, x_start=x_start)
+        sx = unbend.suggest_x_power(y, X, y_power=yp, level=level, y_start=y_start, x_start=x_start, censored=c)
     else:
         notes.append(f"Power for {xname}: not estimated, because the likelihood over the x power needs every "
                      f"{xname} above 0 and {_what_is_below(xu, x_start, xname)}. With --x-start "
                      f"{_nice_start(xu, x_start):g} it is estimated; meanwhile the scan ranks the rungs these data "
                      "allow.")
     f = unbend.fit(y, X, y_power=yp, x_power=xp, y_start=y_start, x_start=x_start, level=level, x_names=names,
-                   y_name=yname)
+                   y_name=yname, censored=c)
     new = _prediction_points(f)
     p = f.predict(new, level=level)
     spread = None
-    if groups_col is not None:
+    half = _half_limit_line(y, X, c, notes, y_power=yp, x_power=xp, y_start=y_start, x_start=x_start, level=level,
+                            x_names=names, y_name=yname) if c is not None else None
+    if groups_col is not None and c is not None:
+        notes.append(f"Spread against level across groups: not estimated, because {int(c.sum())} {yname} value(s) "
+                     "are below a limit and the spread-against-level power has no censored version.")
+    elif groups_col is not None:
         labels = np.array(cells.to_labels(list(df[groups_col]), groups_col) + [None] * max(0, y.size - len(df)),
                           dtype=object)[: y.size]
         try:
@@ -187,7 +200,59 @@ def analyse(df: pd.DataFrame, y_col: str, x_cols: list, groups_col: str | None =
                          f"0 and {_what_is_below(yu, y_start, yname)}; with --y-start {_nice_start(yu, y_start):g} "
                          "it is estimated.")
     return Analysis(source=source, y_name=yname, x_names=names, y=y, X=X, suggest_y=sy, suggest_x=sx,
-                    scan=scan, fit=f, predictions=p, spread=spread, invented=invented, notes=notes)
+                    scan=scan, fit=f, predictions=p, spread=spread, invented=invented, notes=notes, censored=c,
+                    half_limit=half)
+
+
+def _censored_rows(censored, n: int):
+    """The censored flags as a boolean array of length n, or None when nothing is censored."""
+    if censored is None:
+        return None
+    c = np.zeros(n, dtype=bool)
+    given = np.asarray(censored, dtype=bool).reshape(-1)[:n]
+    c[:given.size] = given
+    return c if c.any() else None
+
+
+def _half_limit_line(y, X, c, notes, **fit_args):
+    """The half-limit line for comparison, or None with a note when it cannot be fitted at these powers."""
+    try:
+        return unbend.half_limit(y, X, c, **fit_args)
+    except UnbendError as e:
+        notes.append(f"The comparison line with half the limit substituted could not be fitted at these powers: {e}")
+        return None
+
+
+def censored_lines(a: Analysis) -> list:
+    """Sentences about values below a limit: the method, how many, the half-limit comparison, predictions below
+    the lowest limit (empty without censored values)."""
+    f = a.fit
+    if a.censored is None or not getattr(f, "n_censored", 0):
+        return []
+    lo, hi = f.limits[0], f.limits[-1]
+    lim = f"limit {lo:.4g}" if len(f.limits) == 1 else f"limits {lo:.4g} to {hi:.4g}"
+    out = [f"Method: maximum likelihood with censored values. {f.n_censored} of {f.n} values of {a.y_name} "
+           f"({f.n_censored / f.n:.0%}) are below a detection {lim}; each counts as lying somewhere below its limit "
+           "(normal errors on the re-expressed scale), so none is dropped or replaced by a guess. R² is not "
+           "given: it is not defined with censored values."]
+    h = a.half_limit
+    if h is not None:
+        k = len(f.x_names)
+        slopes = "; ".join(f"a slope for {nm} of {h.coef[1 + j]:.4g} (censored fit: {f.coef[1 + j]:.4g})"
+                           for j, nm in enumerate(f.x_names))
+        out.append(f"For comparison only: substituting half the limit for each censored value (common practice, "
+                   f"known to bias slopes and spreads) gives, at the same powers, {slopes}, and an intercept of "
+                   f"{h.coef[0]:.4g} (censored fit: {f.coef[0]:.4g}). Use the censored fit.")
+    below = a.predictions["below_limit"].to_numpy(dtype=bool) if "below_limit" in a.predictions else None
+    if below is not None and below.any():
+        out.append(f"{int(below.sum())} of the {below.size} predictions {'has' if below.sum() == 1 else 'have'} a "
+                   f"median below the lowest limit "
+                   f"({lo:.4g}): the data there were reported only as below a limit, so they are extrapolation "
+                   "below the limits (flagged in the prediction table).")
+    if len(f.x_names) == 1:
+        out.append("The sheet of the model in built-in formulas is not written for a censored fit: its formulas refit "
+                   "the line by least squares, which would take the limits as measured values.")
+    return out
 
 
 def _prediction_points(f) -> np.ndarray:
@@ -248,6 +313,7 @@ def summary_lines(a: Analysis) -> list:
                    f"of rungs ranks {top.y_rung} of {a.y_name} with {top.x_rung} of {', '.join(a.x_names)} first "
                    "(ranked on the likelihood, with pairs whose residuals curve or drift pushed down; never on "
                    "R\u00b2).")
+    out.extend(censored_lines(a))
     xs = " and ".join(a.x_names)
     for s, name, fitted, other, given in (
             (a.suggest_y, a.y_name, f.y_power, f.x_power, f"{xs} at {f.x_expr.label}"),
@@ -282,12 +348,18 @@ def _prediction_rows(a: Analysis):
     p = a.predictions
     words = prediction_headers(a.fit.level)
     cols = ["median", "mean", "low", "high", "line_low", "line_high", "outside_range", "note"]
-    header = list(a.x_names) + [words[c] for c in cols]
+    below = "below_limit" in p
+    if below:
+        from .wording import CENSORED_MEAN_HEADER
+        words["mean"] = CENSORED_MEAN_HEADER
+    header = list(a.x_names) + [words[c] for c in cols] + (["median below the lowest limit"] if below else [])
     rows = []
     for i in range(len(p)):
         r = [p[c].iloc[i] for c in a.x_names]
         r += [p[c].iloc[i] for c in cols[:-2]]
         r += ["yes" if p["outside_range"].iloc[i] else "no", p["note"].iloc[i]]
+        if below:
+            r.append("yes" if p["below_limit"].iloc[i] else "no")
         rows.append(r)
     return header, rows
 
@@ -417,6 +489,8 @@ def _residual_sheet(book, a):
     infl = res["cooks_distance"].to_numpy(float) > 4.0 / n
     flags = np.where(large & infl, "large residual, influential",
                      np.where(large, "large residual", np.where(infl, "influential", ""))).tolist()
+    if "censored" in res:  # a censored row has no residual: its y is only known to lie below its limit
+        flags = ["below a limit (no residual)" if c_ else fl for c_, fl in zip(res["censored"].tolist(), flags)]
     if a.reading is not None:  # rows of the sheet or file, not positions among the rows used
         res["row"] = a.reading.row_numbers[res["row"].to_numpy(dtype=int) - 1]
     cols = ["row", "y"] + list(f.x_names) + ["y_re"] + [f"{nm}_re" for nm in f.x_names] + \
@@ -491,13 +565,15 @@ def build_report(a: Analysis, path) -> str:
     if a.spread is not None and a.spread.detail is not None:
         _spread_sheet(book, a)
     f = a.fit
-    if len(f.x_names) == 1:
+    if len(f.x_names) == 1 and getattr(f, "n_censored", 0):
+        pass  # the formula sheet refits by least squares, which would take the limits as values: not written
+    elif len(f.x_names) == 1:
         from .portable import add_portable_sheet
         new = a.predictions[f.x_names[0]].to_numpy()
         add_portable_sheet(book, a.y, a.X[:, 0], new, y_power=f.y_power, x_power=f.x_power,
                            y_start=f.y_expr.start, x_start=f.x_expr.start, level=f.level, invented_data=a.invented,
                            y_name=a.y_name, x_name=f.x_names[0], title="Model in formulas", capacity=None)
-    for sh in book.sheets[:-1] if len(f.x_names) == 1 else book.sheets:
+    for sh in book.sheets[:-1] if len(f.x_names) == 1 and not getattr(f, "n_censored", 0) else book.sheets:
         sh.printable()
     book.close()
     return str(path)

@@ -280,7 +280,8 @@ def _choose_sheet(book, sheet, specs):
 # ----------------------------------------------------------------------------- reading
 def read_data(path, y: str, x=(), *, sheet: str | None = None, header_row: int | None = None,
               decimal: str | None = None, hidden: str = "auto", groups: str | None = None,
-              need: int = 3) -> DataReading:
+              need: int = 3, censor: bool = False, limit_column: str | None = None,
+              qualifier_column: str | None = None) -> DataReading:
     """Read the y, x (and group) columns of a data file by the shared reading rules.
 
     Parameters
@@ -304,6 +305,14 @@ def read_data(path, y: str, x=(), *, sheet: str | None = None, header_row: int |
         A column of group labels.
     need : int
         Fewest rows that must be usable.
+    censor : bool
+        Read y for a censored fit: y values below a limit whose limit is known are used at the limit and
+        marked in ``rows.y_censored`` (:func:`unbend.udfs.intake.censor_column`); x values below a limit stay
+        skipped (censoring applies to y only).
+    limit_column : str, optional
+        A column holding each row's detection limit, for y cells written as ND ("not detected") (needs censor).
+    qualifier_column : str, optional
+        A column of "<" marks beside a plain y column (needs censor).
 
     Returns
     -------
@@ -321,8 +330,12 @@ def read_data(path, y: str, x=(), *, sheet: str | None = None, header_row: int |
         raise ReadError(f"--hidden must be use or skip; got {hidden!r}.")
     xs = list(x) if not isinstance(x, str) else [x]
     specs = [y] + xs + ([groups] if groups else [])
+    extra = [(s_, opt) for s_, opt in ((limit_column, "--limit-column"), (qualifier_column, "--qualifier-column"))
+             if s_]
+    if extra and not censor:
+        raise ReadError(f"{extra[0][1]} is for a censored fit of y; it cannot be used here.")
     book = open_book(path)
-    name, sheet_note = _choose_sheet(book, sheet, specs)
+    name, sheet_note = _choose_sheet(book, sheet, specs + [s_ for s_, _ in extra])
     grid = book.grid(name)
     rows_ = grid.rows
     notes = [sheet_note] if sheet_note else []
@@ -345,6 +358,16 @@ def read_data(path, y: str, x=(), *, sheet: str | None = None, header_row: int |
         raise ReadError(f"{e} The header was taken from row {h + 1}; if it is on another row, add "
                         f"--header-row N.") from None
     _refuse_same(cols, specs, headers, len(xs))
+    extra_cols = {}
+    for s_, opt in extra:
+        try:
+            j = _match(s_, headers, opt)
+        except ReadError as e:
+            raise ReadError(f"{e} The header was taken from row {h + 1}.") from None
+        if j in cols[:1 + len(xs)]:
+            raise ReadError(f"{opt} {s_} names a column already used as y or x ({col_letter(j)}); name the column "
+                            "that holds the limits or the '<' marks.")
+        extra_cols[opt] = j
     if how == "layout" and h > 0:
         notes.append(f"The header is on row {h + 1}; the {h} row(s) above it (titles, notes or blanks) were not read "
                      "as data (add --header-row N to choose another row).")
@@ -370,6 +393,8 @@ def read_data(path, y: str, x=(), *, sheet: str | None = None, header_row: int |
     notes += hidden_notes
     y_names = _unique_names([headers[j] or col_letter(j) for j in cols], cols)
     readings = _read_columns(grid, cols[:1 + len(xs)], y_names, start, end, decimal, units)
+    if censor:
+        readings[0] = _censor_y(grid, readings[0], extra_cols, headers, start, end, decimal, units)
     rows = intake.combine(readings[0], readings[1:], row_reasons=rr, row_numbers=row_numbers, row_shown=shown)
     glabels = None
     if groups:
@@ -383,6 +408,23 @@ def read_data(path, y: str, x=(), *, sheet: str | None = None, header_row: int |
     if rows.n_used < need:
         raise ReadError(_too_few(reading, need))
     return reading
+
+
+def _censor_y(grid, y, extra_cols, headers, start, end, decimal, units):
+    """y read for a censored fit, with limits from --limit-column and marks from --qualifier-column."""
+    limits = qualifiers = None
+    n = len(y)
+    if "--limit-column" in extra_cols:
+        j = extra_cols["--limit-column"]
+        nm = headers[j] or col_letter(j)
+        lim = _read_columns(grid, [j], [nm], start, end, decimal, units)[0]
+        limits = _pad(lim, n).values[:n]
+    qname = "qualifier"
+    if "--qualifier-column" in extra_cols:
+        j = extra_cols["--qualifier-column"]
+        qname = headers[j] or col_letter(j)
+        qualifiers = [(r[j] if j < len(r) else None) for r in grid.rows[start:end]]
+    return intake.censor_column(y, limits=limits, qualifiers=qualifiers, qualifier_name=qname)
 
 
 def _read_columns(grid, cols, names, start, end, decimal, units) -> list:
