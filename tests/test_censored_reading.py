@@ -242,6 +242,12 @@ def test_report_plots_draw_censored_points_apart(files, tmp_path):
     h = unbend.half_limit(np.where(cens, 1.5, y), x, cens, y_power=0, x_power=0)
     assert np.allclose(np.sort(p["half_fitted"]), np.sort(h.residuals["fitted"].to_numpy()), rtol=0, atol=1e-9)
     assert np.allclose(p["half_x_re"], np.log(p["x"]))  # drawn on the same axes as the censored fit
+    from unbend.udfs.report import summary_lines
+    below = a.predictions["below_limit"].to_numpy(dtype=bool)
+    med = a.predictions["median"].to_numpy()
+    assert below.tolist() == (med < 1.5).tolist() and below.any()
+    words = flat(" ".join(summary_lines(a)))
+    assert f"{int(below.sum())} of the {below.size} predictions" in words and "median below the lowest limit (1.5)" in words
 
 
 def test_report_reads_nd_with_a_limit_column(files, tmp_path):
@@ -300,6 +306,21 @@ def test_more_than_80_percent_censored_is_refused(tmp_path):
     lines = [ln for ln in err.splitlines() if ln.strip()]
     assert code == cli.EXIT_BAD_INPUT and len(lines) == 1, err
     assert "17 of 20 values (85%) are below a limit" in lines[0] and "Traceback" not in err
+
+
+def test_more_than_half_censored_is_said(tmp_path):
+    rng = np.random.default_rng(6)
+    x = np.arange(1.0, 21.0)
+    y = np.exp(0.1 * x + rng.normal(0, 0.2, 20))
+    path = tmp_path / "half.csv"
+    path.write_text("x,y\n" + "".join(f"{a:g},{'<3' if i < 12 else f'{b:.3f}'}\n"
+                                      for i, (a, b) in enumerate(zip(x, y))), encoding="utf-8")
+    code, text, err = run(["report", path, "--y", "y", "--x", "x", "--y-power", "0", "--x-power", "1",
+                           "--out", tmp_path / "r.xlsx", "--quiet"])
+    assert code == 0, err
+    words = flat(text)
+    # common practice (Helsel 2005): above about half censored the line rests mostly on the limits
+    assert "Warning: 12 of 20 values (60%) are below a limit: the line rests mostly on the limits" in words
 
 
 def test_help_names_the_limit_options():
