@@ -106,7 +106,7 @@ LIMIT_ACTION = ("this calculation leaves them out (it does not replace them by z
 #: What a censored fit does with the values below a limit it still cannot use.
 LIMIT_ACTION_CENSORED = ("they are left out (not replaced by zero, by the limit or by half of it): a value below a "
                          "limit is fitted as censored only when it is y and its limit is known (written in the cell "
-                         "as <0.5, or given by a limit column, --limit-column); values below a limit in x are not "
+                         "as <0.5, or, in unbend report, by --limit-column); values below a limit in x are not "
                          "used, since censoring applies to y only")
 
 #: The mean column's header for a censored fit (no smearing: censored rows have no residuals).
