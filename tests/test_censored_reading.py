@@ -225,6 +225,9 @@ def test_report_on_a_decimal_comma_csv_uses_the_censored_fit(files, tmp_path):
     # common practice (Helsel 2005): half-limit substitution biases the line; here it flattens the slope
     assert half.coef[1] != pytest.approx(b, rel=1e-3)
     assert "Model in formulas" not in openpyxl.load_workbook(out, read_only=True).sheetnames
+    summary = " ".join(str(v) for r in openpyxl.load_workbook(out, read_only=True)["Summary"].iter_rows(values_only=True)
+                       for v in r if isinstance(v, str))
+    assert "normal-theory mean of the censored fit" in summary and "smearing estimate" not in summary
     assert "not written for a censored fit" in words
     assert "normal-theory mean" in text
 

@@ -440,14 +440,16 @@ def _summary_sheet(book, a):
         _wrapped(sh, r, line, width, S_CAUTION if line.startswith(("CAUTION", "Warning")) else None)
         r += 1
     r += 1
-    _wrapped(sh, r, prediction_points_text(a) + " " + PREDICTION_HELP, width, S_NOTE)
+    from .wording import CENSORED_PREDICTION_HELP
+    helps = CENSORED_PREDICTION_HELP if "below_limit" in a.predictions else PREDICTION_HELP
+    _wrapped(sh, r, prediction_points_text(a) + " " + helps, width, S_NOTE)
     r += 1
     out_col = header.index("outside x range")
     _small_table(sh, r, 1, header, rows, number_format=SMART, row_fill=lambda row: WARN if row[out_col] == "yes"
                  else None)
     for j in range(1, width + 1):
         sh.width(j, 15)
-    sh.width(len(header), 40)
+    sh.width(header.index("note") + 1, 40)  # the note (a censored fit adds a column after it)
     return sh
 
 

@@ -109,6 +109,13 @@ LIMIT_ACTION_CENSORED = ("they are left out (not replaced by zero, by the limit 
                          "as <0.5, or, in unbend report, by --limit-column); values below a limit in x are not "
                          "used, since censoring applies to y only")
 
+#: PREDICTION_HELP for a censored fit: its mean is the normal-theory mean, and a median under the lowest limit
+#: is flagged.
+CENSORED_PREDICTION_HELP = PREDICTION_HELP.replace(
+    "(Duan's smearing estimate)", "(the normal-theory mean of the censored fit: smearing needs residuals that "
+    "values below a limit do not have)") + (" A median below the lowest limit is extrapolation below the limits "
+                                            "(flagged in the last column).")
+
 #: The mean column's header for a censored fit (no smearing: censored rows have no residuals).
 CENSORED_MEAN_HEADER = "mean (average y, normal theory)"
 
