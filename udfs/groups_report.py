@@ -322,14 +322,21 @@ def _slopes_sheet(book, a):
         return
     first, last = 5, 4 + n
     name = "Slopes"
+    from xlsxwriter.utility import xl_range_abs
+
+    def ref(col):  # a custom error bar takes its values as a formula (a list would be literal values)
+        return f"='{name}'!{xl_range_abs(first - 1, col, last - 1, col)}"
+
+    plus = (t["slope_high"] - t["slope"]).to_numpy(float).tolist()
+    minus = (t["slope"] - t["slope_low"]).to_numpy(float).tolist()
     chart = book.wb.add_chart({"type": "line"})
     cats = [name, first - 1, 0, last - 1, 0]
     chart.add_series({
         "name": "slope", "categories": cats, "values": [name, first - 1, 1, last - 1, 1],
-        "line": {"none": True}, "marker": {"type": "circle", "size": 6, "fill": {"color": "#2A6F97"},
+        "line": {"none": True}, "marker": {"type": "circle", "size": 4, "fill": {"color": "#2A6F97"},
                                            "border": {"color": "#2A6F97"}},
-        "y_error_bars": {"type": "custom", "plus_values": [name, first - 1, 4, last - 1, 4],
-                         "minus_values": [name, first - 1, 5, last - 1, 5], "end_style": 1,
+        "y_error_bars": {"type": "custom", "plus_values": ref(4), "minus_values": ref(5), "plus_data": plus,
+                         "minus_data": minus, "end_style": 1,
                          "line": {"color": "#2A6F97"}}})
     chart.add_series({"name": "one slope for all", "categories": cats, "values": [name, first - 1, 6, last - 1, 6],
                       "line": {"color": "#C8553D", "dash_type": "dash", "width": 1.25}, "marker": {"type": "none"}})
@@ -437,7 +444,7 @@ def write_plots(a: GroupsAnalysis, folder) -> list:
         ax_.plot(xs, r.intercept + r.slope * xs, color="#333333", lw=1)
         ps = [f"{nm} {_pshort(v)}" for nm, v in (("curv.", r.curvature_p), ("patt.", r.pattern_p),
                                                  ("spread", r.spread_p)) if np.isfinite(v)]
-        ax_.set_title(f"{_label(r.group)}: " + ", ".join(ps), fontsize=8)
+        ax_.set_title(f"{_label(r.group)}\n" + ", ".join(ps), fontsize=8)
         ax_.tick_params(labelsize=7)
     for ax_ in axes[k:]:
         ax_.set_visible(False)
