@@ -100,7 +100,8 @@ def power_sentence(what: str, name: str, power: float, pinned: bool, s, level: f
     if pinned or s is None:
         return f"Power for {name} ({what}), every series: {power:g} ({rung_label(power)}), as given."
     return (f"Power for {name} ({what}), all series together (a line per series): estimate {_f(s.estimate)}, "
-            f"{level * 100:g}% interval {_f(s.low)} to {_f(s.high)}; used: {power:g} ({rung_label(power)}).")
+            f"{level * 100:g}% interval {_f(s.low)} to {_f(s.high)}; used: {power:g} ({rung_label(power)})."
+            + (f" {s.note}" if s.note else ""))
 
 
 def worst_sentence(a: GroupsAnalysis, k: int = 3) -> str:
