@@ -631,7 +631,8 @@ def _open_parquet(path: str) -> Book:
     rows = [header] + [list(r) for r in zip(*columns)]
 
     def load(name):
-        return Grid(name=name, rows=rows)
+        return Grid(name=name, rows=rows, notes=["row numbers count the column names as row 1, so the first "
+                                                 "record is row 2"])
 
     name = os.path.splitext(base)[0]
     return Book(path=path, kind="parquet", sheet_names=[name], visible={name: True}, _loader=load)
