@@ -414,16 +414,31 @@ def write_plots(a: GroupsAnalysis, folder) -> list:
     import matplotlib
     cmap = matplotlib.colormaps["tab20"]
     G = len(t)
-    for i, r in enumerate(t.itertuples()):
-        sel = code == i
-        bad = r.group in failing
-        colour = "#C8553D" if bad else cmap(i % 20)
-        ax.scatter(xr[sel], yr[sel], s=size, color=colour, alpha=0.55 if G > 20 else 0.8, linewidths=0)
-        xs = np.array([np.nanmin(xr[sel]), np.nanmax(xr[sel])])
-        ax.plot(xs, r.intercept + r.slope * xs, color=colour, lw=2.0 if bad else 0.9, alpha=1.0 if bad else 0.7)
-        if bad and r.group in set(worst["group"].head(5).tolist()):
-            ax.annotate(_label(r.group), (xs[1], r.intercept + r.slope * xs[1]), fontsize=8, color=colour,
-                        xytext=(3, 0), textcoords="offset points")
+    # all groups at once (one scatter, one collection of lines): no pass over the rows per group
+    bad = np.array([g in failing for g in t["group"].tolist()], dtype=bool)
+    rgba = np.array([cmap(i % 20) for i in range(min(G, 20))] or [(0, 0, 0, 1)])
+    colours = rgba[np.arange(G) % len(rgba)] if G else np.zeros((0, 4))
+    if G:
+        colours[bad] = matplotlib.colors.to_rgba("#C8553D")
+    pts = np.flatnonzero(ok)
+    ax.scatter(xr[pts], yr[pts], s=size, c=colours[code[pts]] if G else None, alpha=0.55 if G > 20 else 0.8,
+               linewidths=0)
+    if G:
+        lo = np.full(G, np.inf)
+        hi = np.full(G, -np.inf)
+        np.minimum.at(lo, code[pts], xr[pts])
+        np.maximum.at(hi, code[pts], xr[pts])
+        b0, b1 = t["intercept"].to_numpy(float), t["slope"].to_numpy(float)
+        segs = np.stack([np.column_stack([lo, b0 + b1 * lo]), np.column_stack([hi, b0 + b1 * hi])], axis=1)
+        from matplotlib.collections import LineCollection
+        ax.add_collection(LineCollection(segs[~bad], colors=colours[~bad], linewidths=0.9, alpha=0.7))
+        ax.add_collection(LineCollection(segs[bad], colors=colours[bad], linewidths=2.0))
+        named = set(worst["group"].head(5).tolist())
+        for i in np.flatnonzero(bad):
+            g = t["group"].iloc[i]
+            if g in named:
+                ax.annotate(_label(g), (hi[i], b0[i] + b1[i] * hi[i]), fontsize=8, color="#C8553D", xytext=(3, 0),
+                            textcoords="offset points")
     ax.set_xlabel(xlab)
     ax.set_ylabel(ylab)
     ax.set_title(f"Every {a.by_name} on the common scale ({G} series; failing a residual check: red, worst five "
