@@ -353,3 +353,29 @@ def test_help_names_the_options():
     for opt in ("--y", "--x", "--by", "--sheet", "--out", "--y-power", "--x-power", "--y-start", "--x-start",
                 "--level", "--overwrite", "--quiet", "--header-row", "--decimal", "--hidden", ".parquet"):
         assert opt in out
+
+
+def test_a_series_with_too_few_rows_is_left_out_and_named(tmp_path):
+    """Invented: three lines y = a * x**1.5 with small noise, and a series of two rows."""
+    rng = np.random.default_rng(8)
+    path = tmp_path / "few.csv"
+    with open(path, "w", newline="", encoding="utf-8") as fh:
+        w = csv.writer(fh)
+        w.writerow(["machine", "load", "wear"])
+        for name, a in (("M1", 1.0), ("M2", 2.0), ("M3", 0.5)):
+            for x in np.linspace(1, 40, 12):
+                w.writerow([name, f"{x:.3f}", f"{a * x ** 1.5 * math.exp(rng.normal(0, 0.05)):.5f}"])
+        w.writerow(["M4", "3.0", "5.2"])
+        w.writerow(["M4", "9.0", "27.0"])
+    target = tmp_path / "few.xlsx"
+    code, out, err = run(["groups", path, "--y", "wear", "--x", "load", "--by", "machine", "--out", target, "--quiet"])
+    assert code == 0, err
+    t = flat(out)
+    gf = G.analyse_groups(__import__("unbend.udfs.files", fromlist=["read_data"]).read_data(
+        path, "wear", ["load"], groups="machine")).fit
+    reason = gf.left_out.set_index("group").loc["M4", "reason"]
+    assert f"Left out: M4: {reason}." in t
+    assert f"{gf.n_groups} series ({gf.n_groups_used} with a line)" in t and gf.n_groups_used == 3
+    body = [r for r in openpyxl.load_workbook(target)["Series"].iter_rows(min_row=5, values_only=True) if r[0]]
+    assert body[-1][0] == "M4" and body[-1][G.TABLE_COLS.index("note")] == reason  # left out: last, with why
+    assert body[-1][G.TABLE_COLS.index("slope")] is None
