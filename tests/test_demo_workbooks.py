@@ -313,6 +313,7 @@ def test_network_lines_sheet_equals_fit_groups_on_its_data_and_the_command_agree
     import contextlib
     import io
 
+    from unbend.demo_data import ODD_STATION
     from unbend.udfs import cli
 
     sc = SCENARIOS["gauging_network"]
@@ -332,6 +333,11 @@ def test_network_lines_sheet_equals_fit_groups_on_its_data_and_the_command_agree
         assert (r[3], r[4]) == pytest.approx((table.loc[name, "slope_low"], table.loc[name, "slope_high"]), rel=1e-12)
     text = " ".join(str(c.value) for c in wb["Notes"]["A"] if c.value)
     assert "INVENTED DATA" in text and f"{gf.n_skipped} readings are blank" in text
+    # the story's claims: logs of both for all stations; the odd station's residuals curve and its own power
+    # for y leaves the common one out
+    assert "here logs of both" in text and (gf.y_power, gf.x_power) == (0.0, 0.0)
+    odd = table.loc[ODD_STATION]
+    assert odd["curvature_p"] < 0.05 and bool(odd["own_y_differs"]) and not odd["own_y_low"] <= 0 <= odd["own_y_high"]
     out = tmp_path / "net.xlsx"
     with contextlib.redirect_stdout(io.StringIO()), contextlib.redirect_stderr(io.StringIO()):
         code = cli.main(["groups", str(COMMITTED / "gauging_network.xlsx"), "--y", sc["y"], "--x", sc["x"],
