@@ -379,3 +379,25 @@ def test_a_series_with_too_few_rows_is_left_out_and_named(tmp_path):
     body = [r for r in openpyxl.load_workbook(target)["Series"].iter_rows(min_row=5, values_only=True) if r[0]]
     assert body[-1][0] == "M4" and body[-1][G.TABLE_COLS.index("note")] == reason  # left out: last, with why
     assert body[-1][G.TABLE_COLS.index("slope")] is None
+
+
+def test_many_series_chart_the_worst_hundred_and_list_them_all(tmp_path):
+    """Invented: 130 series of 6 rows on one line with noise; the chart holds the 100 worst, the table all."""
+    rng = np.random.default_rng(9)
+    g = np.repeat([f"B{i:03d}" for i in range(130)], 6)
+    x = np.tile(np.linspace(2, 30, 6), 130)
+    y = 3 * x * np.exp(rng.normal(0, 0.1, x.size))
+    path = tmp_path / "many.parquet"
+    pd.DataFrame({"batch": g, "dose": x, "response": y}).to_parquet(path, engine="pyarrow", index=False)
+    target = tmp_path / "many.xlsx"
+    code, out, err = run(["groups", path, "--y", "response", "--x", "dose", "--by", "batch", "--out", target,
+                          "--quiet"])
+    assert code == 0, err
+    wb = openpyxl.load_workbook(target)
+    charted = [r[0] for r in wb["Slopes"].iter_rows(min_row=5, values_only=True) if r[0] is not None]
+    assert len(charted) == G.CHART_MAX
+    gf = unbend.fit_groups(y, x, g)
+    assert set(charted) == set(gf.worst(G.CHART_MAX)["group"])
+    assert "The chart shows the 100 series with the worst residual checks of 130" in wb["Slopes"]["A2"].value
+    listed = [r[0] for r in wb["Series"].iter_rows(min_row=5, values_only=True) if r[0] is not None]
+    assert listed == G.series_order(gf)["group"].tolist() and len(listed) == 130
