@@ -401,3 +401,20 @@ def test_many_series_chart_the_worst_hundred_and_list_them_all(tmp_path):
     assert "The chart shows the 100 series with the worst residual checks of 130" in wb["Slopes"]["A2"].value
     listed = [r[0] for r in wb["Series"].iter_rows(min_row=5, values_only=True) if r[0] is not None]
     assert listed == G.series_order(gf)["group"].tolist() and len(listed) == 130
+
+
+def test_zeros_ask_for_a_start_and_the_level_reaches_every_header(tmp_path):
+    """Invented counts with a zero: the power cannot be chosen without a start; with --y-start 0.5 the run goes
+    through, at the level asked for."""
+    # Box-Cox and Box-Tidwell profiles need every value above 0 (common practice)
+    path = tmp_path / "counts.csv"
+    path.write_text("site,x,y\nA,1,0\nA,2,3\nA,3,5\nA,4,8\nB,1,1\nB,2,2\nB,3,4\nB,5,9\n", encoding="utf-8")
+    line = one_line(*run(["groups", path, "--y", "y", "--x", "x", "--by", "site", "--out", tmp_path / "a.xlsx"]))
+    assert "--y-start (such as 0.5)" in line and "smallest 0" in line
+    assert not (tmp_path / "a.xlsx").exists()
+    code, out, err = run(["groups", path, "--y", "y", "--x", "x", "--by", "site", "--out", tmp_path / "b.xlsx",
+                          "--y-start", "0.5", "--level", "90", "--quiet"])
+    assert code == 0, err
+    assert "90% interval" in flat(out)
+    header = [c.value for c in openpyxl.load_workbook(tmp_path / "b.xlsx")["Series"][4]]
+    assert "slope low 90%" in header and "slope high 90%" in header
