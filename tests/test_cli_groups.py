@@ -143,6 +143,10 @@ def test_rows_used_and_skipped_by_reason(network, files, runs, kind):
         assert f"{reason}: {k}" in t, reason
     if blank_label:
         assert f"Skipped {blank_label} row whose {BY} is blank" in t
+    if kind == "csv":  # the blank-station row is the file's last: header on row 1, then every reading
+        assert f"whose {BY} is blank (such as row {len(network) + 2})." in t
+    if kind == "parquet" and blank_label:
+        assert f"whose {BY} is blank (such as row {3 + 2})." in t
     if kind == "xlsx":
         assert "The header is on row 3" in t  # the title row was not read as data
     if kind == "parquet":  # record i (from 0) is row i + 2: the column names are row 1
