@@ -259,9 +259,10 @@ def _summary_sheet(book, a):
         r += 1
         sh.text(r, 1, k, S_WRAP)
         if isinstance(v, (float, np.floating)):
-            sh.value(r, 2, float(v), S_P if k.endswith(": p") else S_NUM)
+            sh.value(r, 2, float(v), (S_P if k.endswith(": p") else S_NUM).with_(halign="left"))
         else:
-            sh.value(r, 2, v.item() if isinstance(v, np.generic) else v, S_WRAP)
+            v = v.item() if isinstance(v, np.generic) else v
+            sh.value(r, 2, v, S_WRAP if isinstance(v, str) else Style(halign="left"))
             if isinstance(v, str) and len(v) > 90:
                 sh.height(r, 15 * (len(v) // 90 + 1))
     sh.width(1, 42)
