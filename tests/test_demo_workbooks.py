@@ -181,7 +181,8 @@ def test_workbook_contents(name):
     for col in df.columns:
         j = list(df.columns).index(col) + 1
         got = [data.cell(r, j).value for r in range(2, len(df) + 2)]
-        assert got == list(df[col]), col  # the invented data, value for value
+        want = [None if isinstance(v, float) and math.isnan(v) else v for v in df[col]]  # a missing reading: blank
+        assert got == want, col  # the invented data, value for value
     # the xlwings configuration sheet names the UDF module
     conf = wb["xlwings.conf"]
     assert conf["A1"].value == "UDF Modules" and conf["B1"].value == "unbend.udfs"
@@ -304,3 +305,43 @@ def test_model_follows_rows_appended_to_the_data_table(recalculated):
     assert abs(f.coef[1] - f0.coef[1]) > 1e-6
     assert summary["x_max"] == 700.0
     assert preds["outside"].iloc[-1] == "no" and float(preds["new_x"].iloc[-1]) == 600.0
+
+
+def test_network_lines_sheet_equals_fit_groups_on_its_data_and_the_command_agrees(tmp_path):
+    """The gauging network demo: the Lines sheet's slopes are fit_groups on the Data sheet's rows (read back
+    from the file), and `unbend groups` on the committed workbook writes the same slopes."""
+    import contextlib
+    import io
+
+    from unbend.demo_data import ODD_STATION
+    from unbend.udfs import cli
+
+    sc = SCENARIOS["gauging_network"]
+    wb = openpyxl.load_workbook(COMMITTED / "gauging_network.xlsx")
+    data = list(wb["Data"].iter_rows(min_row=2, values_only=True))
+    head = [c.value for c in wb["Data"][1]]
+    jg, jx, jy = (head.index(sc[k]) for k in ("groups", "x", "y"))
+    y = np.array([np.nan if r[jy] is None else r[jy] for r in data], float)
+    x = np.array([r[jx] for r in data], float)
+    g = np.array([r[jg] for r in data], object)
+    gf = unbend.fit_groups(y, x, g)
+    lines = {r[0]: r for r in wb["Lines"].iter_rows(min_row=5, values_only=True) if r[0] is not None}
+    table = gf.table.set_index("group")
+    assert set(lines) == set(table.index)
+    for name, r in lines.items():
+        assert r[1] == table.loc[name, "n"] and r[2] == pytest.approx(table.loc[name, "slope"], rel=1e-12)
+        assert (r[3], r[4]) == pytest.approx((table.loc[name, "slope_low"], table.loc[name, "slope_high"]), rel=1e-12)
+    text = " ".join(str(c.value) for c in wb["Notes"]["A"] if c.value)
+    assert "INVENTED DATA" in text and f"{gf.n_skipped} readings are blank" in text
+    # the story's claims: logs of both for all stations; the odd station's residuals curve and its own power
+    # for y leaves the common one out
+    assert "here logs of both" in text and (gf.y_power, gf.x_power) == (0.0, 0.0)
+    odd = table.loc[ODD_STATION]
+    assert odd["curvature_p"] < 0.05 and bool(odd["own_y_differs"]) and not odd["own_y_low"] <= 0 <= odd["own_y_high"]
+    out = tmp_path / "net.xlsx"
+    with contextlib.redirect_stdout(io.StringIO()), contextlib.redirect_stderr(io.StringIO()):
+        code = cli.main(["groups", str(COMMITTED / "gauging_network.xlsx"), "--y", sc["y"], "--x", sc["x"],
+                         "--by", sc["groups"], "--out", str(out), "--quiet"])
+    assert code == 0
+    got = {r[0]: r[1] for r in openpyxl.load_workbook(out)["Slopes"].iter_rows(min_row=5, values_only=True) if r[0]}
+    assert got == pytest.approx({k: r[2] for k, r in lines.items()}, rel=1e-12)

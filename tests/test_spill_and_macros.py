@@ -29,7 +29,8 @@ from unbend.udfs.spill import METADATA_XML, mark_spilling, put_spilling, save_sp
 
 ROOT = Path(__file__).resolve().parents[1]
 COMMITTED = ROOT / "workbooks_demo"
-TABLE_FUNCTIONS = ("UNBEND_SUGGEST", "UNBEND_SCAN", "UNBEND_FIT", "UNBEND_PREDICT", "UNBEND_RESIDUALS",
+TABLE_FUNCTIONS = ("UNBEND_SUGGEST", "UNBEND_SCAN", "UNBEND_FIT", "UNBEND_PREDICT", "UNBEND_RESIDUALS", "UNBEND_GROUPS",
+                   "UNBEND_GROUP_PREDICT",
                    "UNBEND_SPREAD", "UNBEND_SYMMETRY")
 XLWINGS = Path(standalone_template()).parent
 

@@ -276,7 +276,33 @@ def build_parser() -> argparse.ArgumentParser:
     o.add_argument("--overwrite", action="store_true",
                    help="replace an existing report and its plots (never a read-only file)")
     o.add_argument("--quiet", action="store_true", help="no progress messages")
+    _add_groups_parser(sub)
     return p
+
+
+def _add_groups_parser(sub) -> None:
+    """`unbend groups`: many series, one re-expression for all, a line for each (udfs/groups_report.py)."""
+    g = sub.add_parser("groups", help="one re-expression for many series (sites, machines, batches) and a line "
+                                      "for each: a workbook and plots")
+    g.add_argument("data", help="the data file (.xlsx, .xlsm, .xls, .xlsb, .ods, .csv, .tsv, .txt or .parquet)")
+    g.add_argument("--y", required=True, help="the y column: header text or column letter")
+    g.add_argument("--x", required=True, help="the x column: header text or column letter")
+    g.add_argument("--by", required=True, help="the column that names each row's series (station, machine, batch)")
+    g.add_argument("--sheet", help="sheet name (workbooks only; default: the sheet that holds the named columns)")
+    add_reading_options(g)
+    m = g.add_argument_group("model choices (the same for every series)")
+    m.add_argument("--y-power", type=float, metavar="P",
+                   help="pin the power for y: 2, 1, 0.5, 0 (log), -0.5, -1 ... (default: chosen from all series "
+                        "together)")
+    m.add_argument("--x-power", type=float, metavar="P", help="pin the power for x, same choices as --y-power")
+    m.add_argument("--y-start", type=float, default=0.0, metavar="S", help="added to every y before re-expressing")
+    m.add_argument("--x-start", type=float, default=0.0, metavar="S", help="added to every x before re-expressing")
+    m.add_argument("--level", type=float, default=0.95, metavar="L", help="level of the intervals, 0.95 or 95")
+    o = g.add_argument_group("output")
+    o.add_argument("--out", help="workbook to write (.xlsx; default DATA_unbend_groups.xlsx); its plots go to the "
+                                 "folder NAME_plots beside it")
+    o.add_argument("--overwrite", action="store_true", help="replace an existing workbook and its plots")
+    o.add_argument("--quiet", action="store_true", help="no progress messages")
 
 
 def main(argv=None) -> int:
@@ -289,6 +315,9 @@ def main(argv=None) -> int:
         parser.print_help()
         return 0
     try:
+        if args.command == "groups":
+            from .groups_report import cmd_groups
+            return cmd_groups(args)
         return cmd_demo(args) if args.command == "demo" else cmd_report(args)
     except KeyboardInterrupt:
         return _fail("stopped.", 130)

@@ -73,6 +73,17 @@ SCENARIOS = {
         story=("A lab runs assay batches at concentrations from about 2 to 300 mg/L. Within each batch the "
                "results scatter more at higher levels; spread against level suggests the power that evens the "
                "spread out.")),
+    "gauging_network": dict(
+        make=demo_data.gauging_network, table="NetData", y="sediment_t_per_day", x="discharge_m3s",
+        groups="station", kind="network",
+        title="Gauging network: sediment against discharge at 30 stations",
+        story=("A river authority samples suspended sediment (tonnes per day) and discharge (cubic metres per "
+               "second) at 30 gauging stations. Every station's load climbs faster than its flow; one re-expression "
+               "for all stations (here logs of both) puts every slope on the same scale, so stations can be "
+               "compared. Station 'G17 below the weir' sits below a weir that traps coarse sediment, and its "
+               "readings bend another way: its residuals curve and its own power for y leaves the common one out. "
+               "A few readings are missing (blank cells); they are skipped and counted."),
+        new_x=[10.0, 50.0, 150.0, 400.0], predict_for=("G17 below the weir", "G05")),
 }
 
 
@@ -289,6 +300,107 @@ def _spread_book(name, sc, macro_notes=()):
     return wb
 
 
+def _network_book(name, sc, macro_notes=()):
+    """Many stations: the cell functions for one power for all and a line per station, the lines as the engine
+    gives them when the workbook is built, and a native chart of every station's slope with its interval."""
+    from openpyxl.chart import LineChart, Series
+    from openpyxl.chart.error_bar import ErrorBars
+    from openpyxl.chart.data_source import NumDataSource, NumRef
+
+    df = sc["make"]()
+    wb = Workbook()
+    notes = wb.active
+    notes.title = "Notes"
+    _data_sheet(wb, sc, df)
+    yref, xref, gref = (f"{sc['table']}[{sc[k]}]" for k in ("y", "x", "groups"))
+    gf = unbend.fit_groups(df[sc["y"]].to_numpy(float), df[sc["x"]].to_numpy(float), df[sc["groups"]].to_numpy())
+
+    ws = wb.create_sheet("With the add-in")
+    put(ws, 1, 1, "Cells that call the unbend functions for many stations").font = TITLE_FONT
+    note = put(ws, 2, 1, "These formulas need xlwings with the UDF module unbend.udfs (see Notes); without it they "
+                         "show a name error, and the 'Lines' sheet shows what they gave when this workbook was built. "
+                         "Tables spill where the program has dynamic arrays.")
+    note.font = NOTE_FONT
+    note.alignment = Alignment(wrap_text=True)
+    ws.merge_cells("A2:H2")
+    ws.row_dimensions[2].height = 32
+    put(ws, 4, 1, "Predict for station:").font = HEADER_FONT
+    put(ws, 4, 2, sc["predict_for"][0])
+    put(ws, 5, 1, "New discharges:").font = HEADER_FONT
+    for i, v in enumerate(sc["new_x"]):
+        put(ws, 6 + i, 1, v)
+    first_new, last_new = 6, 5 + len(sc["new_x"])
+    put(ws, 11, 1, "Predictions in original units for the station in B4 (same powers for every station):").font = \
+        HEADER_FONT
+    f_pred = f"=UNBEND_GROUP_PREDICT({yref},{xref},{gref},$B$4,$A${first_new}:$A${last_new})"
+    put(ws, 11, 6, f_pred[1:]).font = NOTE_FONT
+    put_spilling(ws, "A12", f_pred)
+    other = sc["predict_for"][1]
+    put(ws, 18, 1, f"One number: the bias-corrected mean for {other} at the first new discharge:").font = HEADER_FONT
+    f_one = f'=UNBEND_GROUP_PREDICT({yref},{xref},{gref},"{other}",$A${first_new},,,"mean")'
+    put_spilling(ws, "A19", f_one)
+    put(ws, 19, 3, f_one[1:]).font = NOTE_FONT
+    put(ws, 21, 1, "One power for every station, then one row per station:").font = HEADER_FONT
+    f_all = f"=UNBEND_GROUPS({yref},{xref},{gref})"
+    put(ws, 21, 6, f_all[1:]).font = NOTE_FONT
+    put_spilling(ws, "A22", f_all)
+    set_widths(ws, {1: 24, 2: 22, 3: 14})
+
+    lines = wb.create_sheet("Lines")
+    put(lines, 1, 1, "Each station's line as unbend computed it when this workbook was built (from the invented "
+                     "data on the Data sheet; it does not follow later edits: the add-in cells do)").font = TITLE_FONT
+    put(lines, 2, 1, gf.explain()).alignment = Alignment(wrap_text=True, vertical="top")
+    lines.merge_cells("A2:J2")
+    lines.row_dimensions[2].height = 75
+    head = ["station", "rows used", "slope", "slope low 95%", "slope high 95%", "above the slope",
+            "below the slope", "one slope for all", "own y power", "verdict"]
+    for j, h in enumerate(head, start=1):
+        put(lines, 4, j, h).font = HEADER_FONT
+    t = gf.table[gf.table["used"]].sort_values("slope", kind="mergesort")
+    for i, r in enumerate(t.itertuples(), start=5):
+        vals = [r.group, int(r.n), r.slope, r.slope_low, r.slope_high, r.slope_high - r.slope, r.slope - r.slope_low,
+                gf.common_slope, r.own_y_power, r.verdict]
+        for j, v in enumerate(vals, start=1):
+            put(lines, i, j, v, number_format="0.0000" if isinstance(v, float) else None)
+    last = 4 + len(t)
+    set_widths(lines, {1: 20, 2: 10, 3: 10, 4: 12, 5: 12, 6: 12, 7: 12, 8: 14, 9: 12, 10: 80})
+    ch = LineChart()
+    ch.title = "Slope of each station (log-log) with its 95% interval"
+    ch.y_axis.title = "slope"
+    ch.x_axis.title = "station"
+    ch.height, ch.width = 9.0, 24.0
+    cats = Reference(lines, min_col=1, min_row=5, max_row=last)
+    s1 = Series(Reference(lines, min_col=3, min_row=5, max_row=last), title="slope")
+    s1.graphicalProperties.line.noFill = True
+    s1.marker.symbol = "circle"
+    s1.marker.size = 5
+
+    def ref(col):
+        return NumDataSource(numRef=NumRef(f=f"'Lines'!${get_column_letter(col)}$5:${get_column_letter(col)}${last}"))
+
+    s1.errBars = ErrorBars(errDir="y", errBarType="both", errValType="cust", noEndCap=False, plus=ref(6),
+                           minus=ref(7))
+    s2 = Series(Reference(lines, min_col=8, min_row=5, max_row=last), title="one slope for all")
+    s2.marker.symbol = "none"
+    ch.append(s1)
+    ch.append(s2)
+    ch.set_categories(cats)
+    ch.x_axis.delete = False
+    ch.y_axis.delete = False
+    lines.add_chart(ch, f"A{last + 3}")
+    _config_sheet(wb)
+    _notes(notes, sc, [
+        "- With the add-in: UNBEND_GROUPS (one power for every station with its interval, then each station's line, "
+        "checks, verdict and own power) and UNBEND_GROUP_PREDICT (predictions in original units within one station). "
+        "Change the station in B4 or the discharges under it.",
+        "- Lines: the same lines as numbers and a chart of every station's slope with its interval, computed when "
+        "the workbook was built; the command 'unbend groups' writes such a workbook for any file.",
+        f"- The formulas read the whole table, so rows added to it are included. {gf.n_skipped} readings are blank "
+        "and are skipped and counted.",
+    ], macro_notes)
+    return wb
+
+
 def standalone_template() -> str:
     """xlwings' own template with its standalone VBA module (``quickstart_standalone.xlsm``), as installed."""
     import xlwings
@@ -324,7 +436,10 @@ def build_demo_workbook(name: str, folder, macro_enabled: bool = False) -> str:
     """Build one demo workbook into ``folder`` (``.xlsx``, or the macro-enabled ``.xlsm``); returns its path."""
     sc = SCENARIOS[name]
     notes = MACRO_NOTES(macro_enabled)
-    wb = _spread_book(name, sc, notes) if "groups" in sc else _regression_book(name, sc, notes)
+    if sc.get("kind") == "network":
+        wb = _network_book(name, sc, notes)
+    else:
+        wb = _spread_book(name, sc, notes) if "groups" in sc else _regression_book(name, sc, notes)
     printable(wb)
     if macro_enabled:
         _macro_enabled(wb)

@@ -13,6 +13,9 @@ Readers, chosen for speed and completeness:
   a filter as ``filter`` and rows hidden by hand as ``collapse``).
 * .csv / .tsv / .txt: decoded as UTF-8 (with or without BOM), UTF-16 (with BOM), cp1252 or latin-1;
   the delimiter (comma, semicolon, tab, bar) is sniffed and kept, since it settles decimal separators.
+* .parquet: pyarrow (optional extra ``unbend[parquet]``, imported only here). The column names are the
+  header row and each value arrives as a cell would: numbers stay numbers (NaN and nulls become blanks),
+  text goes through the same reading rules as text cells, dates as dates; nested values as their text.
 
 Workbooks are zip archives of XML (.xls is not). Before anything is parsed the archive is checked: it must
 be a zip with a workbook part, and no part may unpack to an unreasonable size or ratio (a "zip bomb" or a
@@ -44,6 +47,7 @@ MAX_CSV_BYTES = 512 * 2**20
 
 WORKBOOK_EXTS = (".xlsx", ".xlsm", ".xls", ".xlsb", ".ods")
 TEXT_EXTS = (".csv", ".tsv", ".txt")
+TABLE_EXTS = (".parquet",)
 
 
 class ReadError(UnbendError):
@@ -107,7 +111,7 @@ class Book:
     """A data file opened: its kind, its sheet names, and grids read on demand (cached)."""
 
     path: str
-    kind: str  # "xlsx", "xls", "xlsb", "ods" or "text"
+    kind: str  # "xlsx", "xls", "xlsb", "ods", "text" or "parquet"
     sheet_names: list
     visible: dict
     _loader: object = None
@@ -117,6 +121,11 @@ class Book:
     @property
     def base(self) -> str:
         return os.path.basename(self.path)
+
+    @property
+    def sheetless(self) -> bool:
+        """A file with one table and no sheets (text, Parquet)."""
+        return self.kind in ("text", "parquet")
 
     def grid(self, name: str) -> Grid:
         if name not in self._cache:
@@ -147,8 +156,10 @@ def open_book(path) -> Book:
         return _open_calamine(path, ext[1:])
     if ext in TEXT_EXTS:
         return _open_text(path)
-    raise ReadError(f"{os.path.basename(path)}: unbend reads .xlsx, .xlsm, .xls, .xlsb, .ods, .csv, .tsv and .txt "
-                    "files; save or export the data as one of those.")
+    if ext in TABLE_EXTS:
+        return _open_parquet(path)
+    raise ReadError(f"{os.path.basename(path)}: unbend reads .xlsx, .xlsm, .xls, .xlsb, .ods, .csv, .tsv, .txt "
+                    "and .parquet files; save or export the data as one of those.")
 
 
 def _check_archive(path: str, what: str = ".xlsx") -> zipfile.ZipFile:
@@ -593,6 +604,57 @@ def _open_text(path: str) -> Book:
              encoding=encoding)
     b.visible = {b.sheet_names[0]: True}
     return b
+
+
+# ----------------------------------------------------------------------------- Parquet
+#: The extra that brings pyarrow, named in the message when it is missing.
+PARQUET_EXTRA = "pip install 'unbend[parquet]'"
+
+
+def _open_parquet(path: str) -> Book:
+    """A Parquet file as one grid: the column names, then one row per record, values as cells hold them."""
+    base = os.path.basename(path)
+    try:
+        import pyarrow as pa
+        import pyarrow.parquet as pq
+    except ImportError:
+        raise ReadError(f"{base} is a Parquet file; reading it needs pyarrow: {PARQUET_EXTRA}.") from None
+    try:
+        table = pq.read_table(path)
+    except Exception as e:  # pyarrow raises several kinds for a damaged or foreign file
+        raise ReadError(f"{base} could not be read as a Parquet file ({_short(e)}). Write it again, or export "
+                        "the data as .csv.") from None
+    if table.num_columns == 0:
+        raise ReadError(f"{base} is empty.")
+    columns = [_parquet_values(table.column(j), pa) for j in range(table.num_columns)]
+    header = [str(nm) for nm in table.column_names]
+    rows = [header] + [list(r) for r in zip(*columns)]
+
+    def load(name):
+        return Grid(name=name, rows=rows, notes=["row numbers count the column names as row 1, so the first "
+                                                 "record is row 2"])
+
+    name = os.path.splitext(base)[0]
+    return Book(path=path, kind="parquet", sheet_names=[name], visible={name: True}, _loader=load)
+
+
+def _parquet_values(col, pa) -> list:
+    """One Parquet column as cell values: None for null and NaN, numbers as numbers, text as text."""
+    t = col.type
+    if pa.types.is_dictionary(t):
+        col = col.cast(t.value_type)
+        t = t.value_type
+    if pa.types.is_floating(t):
+        vals = col.to_pylist()
+        return [None if (v is None or v != v) else v for v in vals]
+    if pa.types.is_integer(t) or pa.types.is_boolean(t) or pa.types.is_string(t) or pa.types.is_large_string(t) \
+            or pa.types.is_decimal(t) or pa.types.is_temporal(t) or pa.types.is_null(t):
+        try:
+            return col.to_pylist()
+        except (ValueError, OverflowError):  # a date beyond what Python's datetime holds: its text
+            return [None if v is None else str(v) for v in col.cast(pa.string()).to_pylist()]
+    # nested, binary and other kinds: their text, which the reading rules then count as text
+    return [None if v is None else str(v) for v in col.to_pylist()]
 
 
 def is_blank(v) -> bool:

@@ -232,9 +232,10 @@ def _sheet_summary(book, name) -> str:
 def _choose_sheet(book, sheet, specs):
     """(sheet name, note) for the sheet to read."""
     names = book.sheet_names
-    if book.kind == "text":
+    if book.sheetless:
         if sheet:
-            raise ReadError("--sheet applies to workbooks only; this is a text file.")
+            kind = "a Parquet file" if book.kind == "parquet" else "a text file"
+            raise ReadError(f"--sheet applies to workbooks only; this is {kind}.")
         return names[0], ""
     if sheet is not None:
         if sheet in names:
@@ -340,7 +341,7 @@ def read_data(path, y: str, x=(), *, sheet: str | None = None, header_row: int |
     rows_ = grid.rows
     notes = [sheet_note] if sheet_note else []
     notes += [n[0].upper() + n[1:] + "." for n in grid.notes]
-    where = f"sheet {name!r}" if book.kind != "text" else book.base
+    where = f"sheet {name!r}" if not book.sheetless else book.base
     if header_row is not None:
         if header_row < 1 or header_row > len(rows_):
             raise ReadError(f"--header-row {header_row} is outside {where}, which has {len(rows_)} rows.")
@@ -348,7 +349,7 @@ def read_data(path, y: str, x=(), *, sheet: str | None = None, header_row: int |
     else:
         h, how = find_header(rows_, _wanted(specs))
         if h is None:
-            raise ReadError(f"{where} of {book.base} is empty." if book.kind != "text" else f"{book.base} is empty.")
+            raise ReadError(f"{where} of {book.base} is empty." if not book.sheetless else f"{book.base} is empty.")
     headers = _headers(rows_[h])
     try:
         cols = [_match(s, headers, opt) for s, opt in zip(specs, ["--y"] + ["--x"] * len(xs) + ["--groups"])]
@@ -400,8 +401,8 @@ def read_data(path, y: str, x=(), *, sheet: str | None = None, header_row: int |
     if groups:
         j = cols[-1]
         glabels = tuple(_label(r[j] if j < len(r) else None) for r in rows_[start:end])
-    reading = DataReading(source=f"{book.base}, sheet {name}" if book.kind != "text" else book.base,
-                          path=os.fspath(path), sheet=name if book.kind != "text" else None, header_row=h + 1,
+    reading = DataReading(source=f"{book.base}, sheet {name}" if not book.sheetless else book.base,
+                          path=os.fspath(path), sheet=name if not book.sheetless else None, header_row=h + 1,
                           units_row=units_row, y_name=y_names[0], x_names=tuple(y_names[1:1 + len(xs)]),
                           groups_name=y_names[-1] if groups else None, letters=tuple(col_letter(j) for j in cols),
                           rows=rows, groups=glabels, notes=tuple(notes), hidden_used=hidden_used)
