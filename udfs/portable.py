@@ -805,6 +805,7 @@ def _inverse_block(sh, workbook, header: int, rv, k: int, first: int, last: int,
     keys = list(INV_COLUMNS)
     for key in keys:
         sh.text(header, _col(INV_COLUMNS[key]), _INV_HEAD[key], _S_HEAD)
+    sh.height(header, 46)
     for i in range(k):
         r = header + 1 + i
         c_in = _col(INV_COLUMNS["reading"])
@@ -814,7 +815,8 @@ def _inverse_block(sh, workbook, header: int, rv, k: int, first: int, last: int,
             sh.blank(r, c_in, Style(num_format=fy))
         sh.blank(r, _col(INV_COLUMNS["replicates"]), Style(num_format="0"))
         for key, text in _inverse_formulas(r, first, last).items():
-            st = Style(num_format=fmt.get(key), halign="right" if key not in ("note", "outside") else None)
+            st = Style(num_format=fmt.get(key),
+                       halign={"note": None, "outside": "center"}.get(key, "right"))
             sh.formula(r, _col(INV_COLUMNS[key]), text, st, value="")
     sh.table(header, 1, header + k, _col(INV_COLUMNS["high_re"]), _unique_table_name(workbook, "UnbendReadings"),
              [_INV_HEAD[kk] for kk in keys], "TableStyleLight11", header_style=_S_HEAD)
