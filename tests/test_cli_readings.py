@@ -115,6 +115,9 @@ def test_readings_column_matches_the_engine(files, column_run):
     flat = " ".join(out.split())
     assert "row 5 sample signal 'n/a'" in flat and "row 7 sample signal blank" in flat
     assert f"{int(e['outside_range'].sum())} outside the standards' conc range" in flat
+    closed = int((np.isfinite(e["low"]) & np.isfinite(e["high"])).sum())
+    assert f"{closed} closed, {len(used) - closed} with an end that does not exist" in flat
+    assert "Detection limit (Hubaux-Vos): not defined: the blank (x = 0) cannot be re-expressed" in flat
     assert int(e["outside_range"].sum()) == 2  # 41000 above the top standard, 300 below the lowest
 
 
@@ -135,6 +138,12 @@ def test_straight_line_interval_from_statsmodels_and_the_quadratic(files):
     code, out, err = run(["report", files["book"], "--y", "signal", "--x", "conc", "--y-power", "1", "--x-power",
                           "1", "--readings", "sample signal", "--out", files["dir"] / "raw.xlsx", "--quiet"])
     assert code == 0, err
+    # the printed limits are the line's own (read back from the fit, not from the sentence's maker)
+    lim = unbend.fit(files["signal"], files["conc"]).detection_limits()
+    flat = " ".join(out.split())
+    assert (f"Detection limit (Hubaux-Vos, one-sided 0.95): {lim.detection_x:.4g} conc; critical level "
+            f"{lim.critical_x:.4g} conc; quantification limit (Currie, 10 sigma) {lim.quantification_x:.4g} conc."
+            ) in flat
     _, table, _ = _readings_sheet(files["dir"] / "raw.xlsx")
     x, y = files["conc"], files["signal"]
     ols = sm.OLS(y, sm.add_constant(x)).fit()
