@@ -201,6 +201,8 @@ def cmd_report(args) -> int:
     data = os.path.abspath(args.data)
     out = _out_path(args, data)
     choices = _model_choices(args)
+    if args.readings and len(args.x) != 1:  # before any work (the check in _back_calculate stays)
+        raise OptionError(f"--readings reads x back from a line with one x; {len(args.x)} --x columns were given.")
     with ReportFiles(out, PLOT_FILES, overwrite=args.overwrite) as files:  # checks --out before any work
         from .report import analyse, write_plots, write_report
 
