@@ -54,6 +54,7 @@ def files(tmp_path_factory):
     ws.append(["conc", "signal", "sample signal"])
     for i in range(conc.size):
         ws.append([float(conc[i]), float(signal[i]), READINGS[i] if i < len(READINGS) else None])
+    ws.append([200.0, "n/a", None])  # a standard without a reading: skipped, and counted
     book = d / "check.xlsx"
     wb.save(book)
     # a CSV export: an id column first, then a column of another name, then one headed like y
@@ -107,6 +108,7 @@ def test_readings_column_matches_the_engine(files, column_run):
     assert table[used.index(41000.0)][5] == "yes"  # above the top standard: extrapolation, flagged
     lim = f.detection_limits()
     assert limits["rows used"] == f.n
+    assert limits["rows skipped"] == 1  # the standards' row 27 ('n/a'), counted from the file's reading
     for label, value, _ in lim.rows():
         if isinstance(value, float) and math.isfinite(value):
             assert math.isclose(limits[label], value, rel_tol=1e-12), label

@@ -39,6 +39,7 @@ class ReadingsResult:
     table: pd.DataFrame           # one row per reading used: row, reading, x, low, high, outside_range, note
     limits: object                # unbend.calibration.CalibrationLimits
     level: float
+    standards_skipped: int | None = None  # rows of the standards' file skipped (the fit sees used rows only)
 
 
 def _is_file(value: str) -> bool:
@@ -109,7 +110,7 @@ def read_readings(value: str, data_path: str, y_name: str, *, sheet=None, header
                     "a column of measured y.")
 
 
-def back_calculate(fit, rd, how: str, level: float) -> ReadingsResult:
+def back_calculate(fit, rd, how: str, level: float, standards_skipped: int | None = None) -> ReadingsResult:
     """x read back from every reading used (one sample each), and the limits of the line."""
     vals = rd.y
     t = fit.inverse(vals, level=level, replicates=1)
@@ -117,7 +118,7 @@ def back_calculate(fit, rd, how: str, level: float) -> ReadingsResult:
                           "low": t["low"].to_numpy(), "high": t["high"].to_numpy(),
                           "outside_range": t["outside_range"].to_numpy(), "note": t["note"].tolist()})
     return ReadingsResult(how=how, reading=rd, table=table, limits=fit.detection_limits(level=level),
-                          level=level)
+                          level=level, standards_skipped=standards_skipped)
 
 
 def _fmt(v) -> str:
@@ -202,6 +203,9 @@ def add_readings_sheet(book, res: ReadingsResult, x_name: str, y_name: str) -> N
     sh.text(r, 1, "Limits from the calibration line (the rows UNBEND_LIMITS shows)", S_TITLE)
     r += 1
     lim_rows = [[k, ("" if isinstance(v, float) and not np.isfinite(v) else v), d] for k, v, d in res.limits.rows()]
+    if res.standards_skipped is not None:  # the file's count, as UNBEND_LIMITS shows the cells' count
+        lim_rows = [[k, res.standards_skipped, "rows of the standards skipped; the Summary sheet lists them by reason"]
+                    if k == "rows skipped" else [k, v, d] for k, v, d in lim_rows]
     _small_table(sh, r, 1, ["item", "value", "definition"], lim_rows, number_format=SMART)
     for j, wd in {1: 30, 2: 16, 3: 16, 4: 16, 5: 16, 6: 14, 7: 70}.items():
         sh.width(j, wd)

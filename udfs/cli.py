@@ -237,7 +237,7 @@ def _back_calculate(args, data, reading, a, level, prog):
     prog.step("reading x back from the readings")
     rd, how = read_readings(args.readings, data, reading.y_name, sheet=args.sheet, header_row=args.header_row,
                             decimal=args.decimal, hidden=args.hidden or "auto")
-    return back_calculate(a.fit, rd, how, level)
+    return back_calculate(a.fit, rd, how, level, standards_skipped=reading.rows.n_skipped)
 
 
 def build_parser() -> argparse.ArgumentParser:
