@@ -227,8 +227,8 @@ def demo(tmp_path_factory):
 
 
 DEMO_BOOKS = [f"{n}.{ext}" for ext in ("xlsx", "xlsm")  # each with its macro-enabled copy
-              for n in ("river_sediment", "tool_life", "fleet_fuel", "batch_defects", "assay_batches",
-                        "gauging_network")]
+              for n in ("river_sediment", "tool_life", "fleet_fuel", "batch_defects", "detector_calibration",
+                        "assay_batches", "gauging_network")]
 DEMO_PNGS = ["before_after.png", "residuals.png", "scan.png"]
 
 

@@ -329,9 +329,9 @@ def test_colleague_changes_settings(lo):
 def test_appended_rows_recalculate(lo):
     y0, x0, y1, x1 = _append_data()
     ref_before, end = lo["append"]
-    assert ref_before == "A57:G75" and end == 80  # 15 rows + 3 spare; 8 more fill 3 and add 5
+    assert ref_before == "A67:G85" and end == 90  # 15 rows + 3 spare; 8 more fill 3 and add 5
     src = openpyxl.load_workbook(lo["src"]["append_more"])
-    assert _data_table(src.active).ref == "A57:G80"
+    assert _data_table(src.active).ref == "A67:G90"
     nx = [3.0, 12.0, 22.0, 26.0]
     before = unbend.fit(y0, x0, y_power=0.5)
     after = unbend.fit([v if isinstance(v, float) else np.nan for v in y0 + y1], x0 + x1, y_power=0.5)
@@ -344,7 +344,7 @@ def test_appended_rows_recalculate(lo):
     _compare(r1, after.predict(nx), 0.0)
     # the new rows carry working formulas like the first rows
     ws = src.active
-    assert ws["D80"].value == ws["D58"].value.replace("58", "80")
+    assert ws["D90"].value == ws["D68"].value.replace("68", "90")
 
 
 def test_append_refuses_beyond_capacity(tmp_path):
@@ -401,7 +401,7 @@ def test_formula_like_text_stays_text_in_libreoffice(lo):
 PORTABLE_FUNCTIONS = {  # in both LibreOffice Calc and the common desktop spreadsheet program since 2007 (from memory)
     "IF", "AND", "OR", "NOT", "ISNUMBER", "ISERROR", "IFERROR", "INT", "MOD", "LN", "EXP", "SIGN", "ABS", "MAX",
     "MIN", "SQRT", "NA", "SLOPE", "INTERCEPT", "STEYX", "RSQ", "COUNT", "AVERAGE", "DEVSQ", "TINV", "SUMPRODUCT",
-    "COUNTIF", "ROUND",
+    "COUNTIF", "ROUND", "MID",
 }
 
 
@@ -413,8 +413,8 @@ def test_written_file_is_valid_and_portable(tmp_path):
     assert len(wb.worksheets) == 1
     ws = wb.active
     tables = {t.displayName.rstrip("0123456789"): t.ref for t in ws.tables.values()}
-    assert tables == {"UnbendNewX": "A40:O56", "UnbendData": "A59:G109"}
-    assert [c.value for c in ws["A59:G59"][0]] == ["y", "x"] + [
+    assert tables == {"UnbendNewX": "A40:O56", "UnbendReadings": "A61:L66", "UnbendData": "A69:G119"}
+    assert [c.value for c in ws["A69:G69"][0]] == ["y", "x"] + [
         "x of rows used (blank = row skipped)", "y re-expressed", "x re-expressed",
         "line at this x (re-expressed scale)", "residual (blank = row not used)"]
     used = set()
@@ -463,7 +463,7 @@ def test_add_to_existing_workbook_twice():
     b = add_portable_sheet(wb, y, x, nx, **opts)
     assert a.title != b.title
     names = [n for ws in wb.worksheets for n in ws.tables]
-    assert len(names) == len(set(names)) == 4
+    assert len(names) == len(set(names)) == 6
 
 
 # ----------------------------------------------------------------------------- the recalculation harness

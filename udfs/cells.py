@@ -591,6 +591,57 @@ def table(header, rows) -> list:
 
 
 _PLAIN_OUT = frozenset({float, int, str, bool})
+_PLAIN_KEEP = frozenset({int, str, bool})
+
+
+def _out_column(c) -> list:
+    """One column of a result as plain cell values, as :func:`_out` makes them, at C speed where it can."""
+    if isinstance(c, np.ndarray) and c.ndim == 1 and c.dtype.kind in "fiub":
+        vals = c.tolist()  # Python floats, ints or bools
+        if c.dtype.kind == "f":
+            for i in np.flatnonzero(~np.isfinite(c)).tolist():
+                vals[i] = ""
+        return vals
+    vals = c.tolist() if isinstance(c, np.ndarray) else list(c)
+    kinds = set(map(type, vals))
+    if kinds <= _PLAIN_KEEP:
+        return vals
+    if kinds == {float}:
+        return _out_column(np.array(vals, dtype=float))
+    return [_out(v) for v in vals]
+
+
+def table_columns(header, columns) -> list:
+    """:func:`table` for a result given column by column: the same cells, built a column at a time.
+
+    Parameters
+    ----------
+    header : list of str or None
+        First row; ``None`` or empty for no header row.
+    columns : list of columns
+        Each a numpy array or a list, all of one length (one value per row).
+
+    Returns
+    -------
+    list of list
+        Exactly what ``table(header, zip(*columns))`` returns, without a pass
+        over every cell in Python for numeric columns (10^4 rows x 11
+        columns in a few milliseconds).
+    """
+    cols = [_out_column(c) for c in columns]
+    lengths = {len(c) for c in cols}
+    if len(lengths) > 1:
+        raise ValueError(f"columns of different lengths: {sorted(lengths)}")
+    body = list(map(list, zip(*cols)))
+    head = _row_values(header) if header is not None else []
+    width = max(len(head), len(cols) if body else 0)  # every body row has one cell per column
+    if head:
+        body.insert(0, [_out(v) for v in head])  # a short row: cleaned cell by cell, as table() would
+    if width == 0:
+        return [[""]]
+    if head and len(head) != len(cols):
+        body = [r + [""] * (width - len(r)) for r in body]
+    return body
 
 
 def _plain_cells(body: list) -> bool:

@@ -221,6 +221,8 @@ def cmd_report(args) -> int:
     data = os.path.abspath(args.data)
     out = _out_path(args, data)
     choices = _model_choices(args)
+    if args.readings and len(args.x) != 1:  # before any work (the check in _back_calculate stays)
+        raise OptionError(f"--readings reads x back from a line with one x; {len(args.x)} --x columns were given.")
     with ReportFiles(out, PLOT_FILES, overwrite=args.overwrite) as files:  # checks --out before any work
         from .report import analyse, write_plots, write_report
 
@@ -228,16 +230,39 @@ def cmd_report(args) -> int:
         prog.step("choosing powers and scanning the rungs")
         a = analyse(df, ycol, xcols, gcol, source=reading.source, censored=_censored_of(reading), **choices)
         a.reading = reading
+        if args.readings:  # issue 13: x read back from measured y (udfs/calibrate.py)
+            a.readings = _back_calculate(args, data, reading, a, choices["level"], prog)
         prog.step("writing the report workbook")
         write_report(a, files.staged_workbook)
         prog.step("drawing the plots")
         write_plots(a, files.staged_plots)
         rep, pngs = files.publish()
     _print_summary(a)
+    if getattr(a, "readings", None) is not None:
+        from .calibrate import print_readings
+        print_readings(a.readings, a.x_names[0], a.y_name)
     print("\nFiles written:")
     for p in [rep] + pngs:
         print("  " + p)
     return 0
+
+
+def _back_calculate(args, data, reading, a, level, prog):
+    """--readings: read the readings (a column of the data file, or a file) and read x back from each."""
+    from .calibrate import back_calculate, read_readings
+
+    if len(a.x_names) != 1:
+        raise OptionError(f"--readings reads x back from a line with one x; this report has {len(a.x_names)} "
+                          "(give one --x).")
+    if getattr(a.fit, "n_censored", 0):  # the inverse interval is the least-squares one; no censored version yet
+        raise OptionError(f"--readings reads x back from a least-squares line, but {a.fit.n_censored} standards "
+                          "are below a limit and were fitted as censored values; reading x back from a censored "
+                          "calibration is not supported. Leave out --readings, or give standards with measured "
+                          "values.")
+    prog.step("reading x back from the readings")
+    rd, how = read_readings(args.readings, data, reading.y_name, sheet=args.sheet, header_row=args.header_row,
+                            decimal=args.decimal, hidden=args.hidden or "auto")
+    return back_calculate(a.fit, rd, how, level, standards_skipped=reading.rows.n_skipped)
 
 
 def build_parser() -> argparse.ArgumentParser:
@@ -257,6 +282,11 @@ def build_parser() -> argparse.ArgumentParser:
     r.add_argument("--sheet", help="sheet name (workbooks only; default: the sheet that holds the named columns)")
     r.add_argument("--groups", help="a group column, for the spread-against-level power")
     add_reading_options(r)
+    r.add_argument("--readings", metavar="COLUMN|FILE",
+                   help="measured y of unknown samples: x is read back from each through the fitted line, with an "
+                        "interval, and the detection limits are added (a Readings sheet). An existing file's path "
+                        "names a file (its column headed like the y column, else its first column with a number); "
+                        "anything else names a column of the data file (header text or letter)")
     # model choices: the same arguments as the cell functions
     m = r.add_argument_group("model choices (the same as the cell functions' arguments)")
     m.add_argument("--y-power", type=float, metavar="P",

@@ -67,6 +67,16 @@ SCENARIOS = {
         story=("A production line counts defects in each batch. Counts scatter more when they are larger; the "
                "square root steadies them."),
         new_x=[500.0, 2500.0, 4800.0, 7000.0]),
+    "detector_calibration": dict(
+        make=demo_data.detector_calibration, table="DetectorData", y="signal_counts", x="conc_ug_per_l",
+        title="Lab calibration: detector signal against standard concentration, used backwards",
+        story=("A lab reads a detector's signal (counts) for standards of known concentration (micrograms per "
+               "litre), three readings of each, then reads unknown samples and wants their concentration back with "
+               "an honest interval. The detector saturates gently: the signal grows more slowly than the "
+               "concentration, and its scatter grows with it; logs of both straighten the relation. Reading x back "
+               "from a signal inverts that line, and the interval comes out lopsided in micrograms per litre."),
+        new_x=[1.0, 10.0, 50.0, 150.0],
+        samples=demo_data.detector_samples, samples_table="SampleData"),
     "assay_batches": dict(
         make=demo_data.assay_batches, table="AssayData", y="result_mg_per_l", groups="batch",
         title="Lab assays: spread grows with level",
@@ -213,8 +223,10 @@ def _regression_book(name, sc, macro_notes=()):
     notes = wb.active
     notes.title = "Notes"
     data_ws = _data_sheet(wb, sc, df)
+    samples = sc["samples"]() if "samples" in sc else None
     model = add_portable_sheet(wb, y, x, sc["new_x"], y_power=yp, x_power=xp, title="Model (no add-in)",
-                               y_name=sc["y"], x_name=sc["x"], invented_data=True, spare_rows=LINKED_SPARE)
+                               y_name=sc["y"], x_name=sc["x"], invented_data=True, spare_rows=LINKED_SPARE,
+                               readings=() if samples is None else samples["reading_1"].to_numpy(float))
     cols = list(df.columns)
     ycol, xcol = get_column_letter(cols.index(sc["y"]) + 1), get_column_letter(cols.index(sc["x"]) + 1)
     first = _link_model_to_data(model, data_ws, len(df), ycol, xcol)
@@ -222,6 +234,9 @@ def _regression_book(name, sc, macro_notes=()):
     nf, nl = (int("".join(ch for ch in part if ch.isdigit())) for part in new_table.ref.split(":"))
     yref, xref = f"{sc['table']}[{sc['y']}]", f"{sc['table']}[{sc['x']}]"
     _addin_sheet(wb, sc, yref, xref, nf + 1, nl)
+    extra = []
+    if samples is not None:
+        extra = _calibration_sheets(wb, sc, samples, yref, xref)
 
     charts = wb.create_sheet("Charts")
     put(charts, 1, 1, "Charts (built-in; they follow the model sheet)").font = TITLE_FONT
@@ -239,8 +254,63 @@ def _regression_book(name, sc, macro_notes=()):
         "Predictions come back in original units with intervals and an extrapolation flag.",
         "- With the add-in: the same analysis through the unbend cell functions (needs xlwings).",
         "- Charts: the data before and after re-expression, and the residuals; they work without the add-in.",
-    ], macro_notes)
+    ] + extra, macro_notes)
     return wb
+
+
+def _calibration_sheets(wb, sc, samples, yref, xref) -> list:
+    """Samples (their readings, as a table) and 'Read back' (UNBEND_INVERSE and UNBEND_LIMITS cells)."""
+    ws = wb.create_sheet("Samples")
+    cols = list(samples.columns)
+    for j, c in enumerate(cols, start=1):
+        put(ws, 1, j, c).font = HEADER_FONT
+    for i, row in enumerate(samples.itertuples(index=False), start=2):
+        for j, v in enumerate(row, start=1):
+            put(ws, i, j, v)
+    last = len(samples) + 1
+    t = Table(displayName=sc["samples_table"], ref=f"A1:{get_column_letter(len(cols))}{last}")
+    t.tableStyleInfo = TableStyleInfo(name="TableStyleLight9", showRowStripes=True)
+    ws.add_table(t)
+    set_widths(ws, {j: 20 for j in range(1, len(cols) + 1)})
+    st = sc["samples_table"]
+    first_read = get_column_letter(cols.index("reading_1") + 1)
+    last_read = get_column_letter(len(cols))
+    rb = wb.create_sheet("Read back")
+    put(rb, 1, 1, "Concentration read back from a signal (needs the add-in)").font = TITLE_FONT
+    note = put(rb, 2, 1, "Invented numbers. Each formula inverts the calibration line of the Data sheet (log signal on "
+                         "log concentration): the x estimate, and the x values whose interval for the reading "
+                         "contains it (Fieller's interval), taken back to micrograms per litre. 'made_up_at' on the "
+                         "Samples sheet is what the invented samples were made up at: compare. Without the add-in, "
+                         "the block 'x from a measured y' on the 'Model (no add-in)' sheet does the same in built-in "
+                         "formulas for one reading at a time.")
+    note.font = NOTE_FONT
+    note.alignment = Alignment(wrap_text=True, vertical="top")
+    rb.merge_cells("A2:H2")
+    rb.row_dimensions[2].height = 62
+    blocks = [
+        (4, "Each sample's first reading (one reading per sample):",
+         f"=UNBEND_INVERSE({yref},{xref},{st}[reading_1])"),
+        (20, "Each sample's three readings together (one row per sample; their mean on the log scale):",
+         f"=UNBEND_INVERSE({yref},{xref},Samples!${first_read}$2:${last_read}${last},,,,,3)"),
+        (36, "Critical level, detection and quantification limits (one-sided 95%):",
+         f"=UNBEND_LIMITS({yref},{xref})"),
+    ]
+    for r, label, formula in blocks:
+        put(rb, r, 1, label).font = HEADER_FONT
+        put(rb, r + 1, 1, formula).font = NOTE_FONT  # the formula below, as text
+        put_spilling(rb, f"A{r + 2}", formula)
+    put(rb, 60, 1, "With log concentration the blank (x = 0) has no place on the scale, so the limits table says in "
+                   "words that the limits are not defined for this line; a calibration with a blank standard, fitted "
+                   "with an x start or at a power above 0, gives them.").font = NOTE_FONT
+    set_widths(rb, {1: 16, 2: 14, 3: 14, 4: 14, 5: 14, 6: 14, 7: 14, 8: 40})
+    return [
+        "- Samples: invented unknown samples, three readings each, with the concentration each was made up at "
+        "(unknown in real use; here to compare).",
+        "- Read back: UNBEND_INVERSE cells (concentration from a signal, with its interval, one row per sample) "
+        "and UNBEND_LIMITS (critical level, detection and quantification limits, each with its definition).",
+        "- Model (no add-in), block 'x from a measured y': type a signal and get the concentration and its interval "
+        "in built-in formulas (Fieller's interval on the log scale, taken back).",
+    ]
 
 
 def _col_index(letter: str) -> int:

@@ -61,7 +61,8 @@ from unbend.wording import MEAN_FAR_WORDS, MEAN_FEW_WORDS, MEAN_UNBOUNDED, MEAN_
 from .xlsx import Column, Style, clean_text
 
 __all__ = ["add_portable_sheet", "write_portable_workbook", "append_portable_rows", "read_portable",
-           "CELL", "DATA_COLUMNS", "NEW_COLUMNS", "PRED_HEADER", "DATA_CAPTION"]
+           "read_portable_inverse", "CELL", "DATA_COLUMNS", "NEW_COLUMNS", "INV_COLUMNS", "PRED_HEADER",
+           "DATA_CAPTION", "INV_CAPTION"]
 
 # ----------------------------------------------------------------------------- layout
 #: Cells of the settings and of the line. Settings are the ones a colleague may change.
@@ -82,6 +83,13 @@ NEW_COLUMNS = {"new_x": "A", "median": "B", "mean": "C", "line_low": "D", "line_
 DATA_COLUMNS = {"y": "A", "x": "B", "x_used": "C", "y_re": "D", "x_re": "E", "line": "F", "residual": "G"}
 #: First words of the caption above the data table (how a reader finds it again).
 DATA_CAPTION = "Data: type y and x below"
+#: Block "x from a measured y" (between the predictions and the data): columns (key, letter).
+INV_COLUMNS = {"reading": "A", "replicates": "B", "x": "C", "low": "D", "high": "E", "outside": "F",
+               "reading_re": "G", "g": "H", "note": "I", "x_re": "J", "low_re": "K", "high_re": "L"}
+#: First words of that block's caption.
+INV_CAPTION = "x from a measured y"
+#: What the x columns show instead of a number when the slope is not significant (no closed interval).
+INV_NOT_BOUNDED = "not bounded"
 
 _DATA_HEAD = {
     "x_used": "x of rows used (blank = row skipped)",
@@ -112,6 +120,21 @@ _NEW_HEAD = {
 SHEET_ROWS = 1_048_576
 #: Rows the statistics look at when the data are fewer.
 DEFAULT_CAPACITY = 5000
+
+_INV_HEAD = {
+    "reading": "measured y (one reading, or the average of m)",
+    "replicates": "m: readings averaged (blank = 1)",
+    "x": "x estimate",
+    "low": "x: low",
+    "high": "x: high",
+    "outside": "outside the standards' x range?",
+    "reading_re": "reading re-expressed",
+    "g": "g (below 1: the interval closes)",
+    "note": "note on this reading",
+    "x_re": "x estimate re-expressed",
+    "low_re": "x: low (re-expressed)",
+    "high_re": "x: high (re-expressed)",
+}
 
 _RIGHT = ("median", "mean", "line_low", "line_high", "low", "high", "x_re", "fitted", "line_low_re",
           "line_high_re", "low_re", "high_re")
@@ -359,6 +382,70 @@ def _new_formulas(r: int, first: int, last: int) -> dict:
     }
 
 
+def _inverse_formulas(r: int, first: int, last: int) -> dict:
+    """Formulas of row ``r`` of the block "x from a measured y" (Fieller's interval, as :func:`unbend.calibration.fieller`).
+
+    On the re-expressed scale, with ``D = estimate - mean x'``, ``g = (t s / slope)**2 / Sxx`` and
+    ``q = 1/m + 1/n`` the ends are ``mean x' + (D -/+ (t s / |slope|) sqrt(D**2 / Sxx + (1 - g) q)) / (1 - g)``
+    (Draper and Smith 1998, section 3.2); for ``g >= 1`` there is no closed interval and the cells say so in
+    words. The ends are taken back end by end, cut where the x re-expression ends, as the engine does.
+    """
+    C = {k: _abs(v) for k, v in CELL.items()}
+    V = {k: f"{c}{r}" for k, c in INV_COLUMNS.items()}
+    rd, mc, z, g, xr, klo, khi = (V[k] for k in ("reading", "replicates", "reading_re", "g", "x_re", "low_re",
+                                                 "high_re"))
+    a, b, s, n, t, xm, sxx = (C[k] for k in ("intercept", "slope", "resid_sd", "n", "t", "x_mean", "sxx"))
+    yp, ys, xp, xs = C["y_power"], C["y_start"], C["x_power"], C["x_start"]
+    xre = _block(DATA_COLUMNS["x_re"], first, last)
+    m_ok = f'OR({mc}="",AND(ISNUMBER({mc}),{mc}>=1,{mc}=INT({mc})))'
+    mm = f'IF({mc}="",1,{mc})'
+    odd = f"AND({xp}=INT({xp}),MOD({xp},2)=1)"
+    floor0 = f"AND({xp}>0,NOT({odd}))"        # x' cannot go below 0 (x + start = 0)
+    ceil0 = f"{xp}<0"                          # x' stays below 0 (x growing without end)
+    live = f"ISNUMBER({xr})"
+    closed = f"{g}<1"
+    empty = f"AND({closed},OR(AND({floor0},{khi}<0),AND({ceil0},{klo}>=0)))"
+    below = f"AND({floor0},{xr}<0)"
+    above = f"AND({ceil0},{xr}>=0)"
+    half = f"{t}*{s}/ABS({b})*SQRT(({xr}-{xm})^2/{sxx}+(1-{g})*(1/{mm}+1/{n}))"
+    level = f"ROUND({C['level']}*100,4)"
+    notes = [
+        (f'{V["outside"]}="yes"', "\"outside the calibration standards' x range: extrapolation\""),
+        (below, f'"the line reaches this reading only below x = "&(-{xs})&", the smallest x that this x power '
+                f'allows, so there is no estimate"'),
+        (above, '"the line levels off before this reading (at this x power), so no finite x gives it and there is '
+                'no estimate"'),
+        (f"NOT({closed})", f'"no closed interval: the slope is not significant at the "&{level}&"% level (g is '
+                           f'not below 1), so the x values consistent with this reading run without end"'),
+        (empty, '"no x that this x power allows is consistent with this reading"'),
+        (f"AND({closed},NOT({empty}),{floor0},{klo}<0)",
+         f'"the interval reaches down to x = "&(-{xs})&", the smallest x that this x power allows"'),
+        (f"AND({closed},NOT({empty}),{ceil0},{khi}>=0)",
+         '"the interval has no upper end: the band does not close as x grows"'),
+        (f"{n}<8", f'"only "&{n}&" rows were used: treat with caution"'),
+    ]
+    joined = "&".join(f'IF({cond},"; "&{text},"")' for cond, text in notes)
+    return {
+        "reading_re": (f'=IF({rd}="","",IF(NOT(ISNUMBER({rd})),"not a number",'
+                       f'IFERROR({_reexpress(rd + "+" + ys, yp)},"cannot re-express")))'),
+        "g": f'=IF(ISNUMBER({z}),IFERROR(({t}*{s}/{b})^2/{sxx},""),"")',
+        "x_re": f'=IF(AND(ISNUMBER({z}),ISNUMBER({g}),{m_ok}),{xm}+({z}-{a}-{b}*{xm})/{b},"")',
+        "low_re": (f'=IF({live},IF({closed},{xm}+(({xr}-{xm})-{half})/(1-{g}),"{INV_NOT_BOUNDED}"),"")'),
+        "high_re": (f'=IF({live},IF({closed},{xm}+(({xr}-{xm})+{half})/(1-{g}),"{INV_NOT_BOUNDED}"),"")'),
+        "x": f'=IF({live},IF(OR({below},{above}),"none",{_invert(xr, xp, xs)}),"")',
+        "low": (f'=IF({live},IF(NOT({closed}),"{INV_NOT_BOUNDED}",IF({empty},"none",'
+                f'{_invert(klo, xp, xs)})),"")'),
+        "high": (f'=IF({live},IF(NOT({closed}),"{INV_NOT_BOUNDED}",IF({empty},"none",'
+                 f'IF(AND({ceil0},{khi}>=0),"no upper end",{_invert(khi, xp, xs)}))),"")'),
+        "outside": f'=IF({live},IF(OR({xr}<MIN({xre}),{xr}>MAX({xre})),"yes","no"),"")',
+        "note": (f'=IF({rd}="","",IF(NOT(ISNUMBER({rd})),"the reading is not a number",'
+                 f'IF({C["check"]}<>"ok","no line: "&{C["check"]},'
+                 f'IF(NOT(ISNUMBER({z})),"the reading cannot be re-expressed at this y power",'
+                 f'IF(NOT({m_ok}),"m (readings averaged) must be a whole number, 1 or more",'
+                 f'MID({joined},3,2000))))))'),
+    }
+
+
 def _summary_formulas(first: int, last: int) -> dict:
     C = {k: _abs(v) for k, v in CELL.items()}
     yre, xre = _block(DATA_COLUMNS["y_re"], first, last), _block(DATA_COLUMNS["x_re"], first, last)
@@ -438,7 +525,7 @@ def _unique_table_name(wb, stem: str) -> str:
 def add_portable_sheet(workbook, y, x, new_x=(), *, y_power=1.0, x_power=1.0, y_start=0.0, x_start=0.0,
                        level=0.95, title: str = "Portable prediction", y_name: str = "y", x_name: str = "x",
                        invented_data: bool = False, spare_rows: int = 20, spare_new_rows: int = 10,
-                       capacity: int | None = DEFAULT_CAPACITY):
+                       capacity: int | None = DEFAULT_CAPACITY, readings=(), spare_readings: int = 5):
     """Add a sheet holding the data, the fitted line and predictions, all as built-in spreadsheet formulas.
 
     Parameters
@@ -473,6 +560,13 @@ def add_portable_sheet(workbook, y, x, new_x=(), *, y_power=1.0, x_power=1.0, y_
         below that are ignored (the sheet says where the block ends). None:
         the data and spare rows, and at least 5,000, up to the sheet's own
         limit of 1,048,576 rows.
+    readings : array_like, optional
+        Measured y values for the block "x from a measured y" (the line used
+        backwards, as in a calibration), one per row; a colleague types more
+        in its empty rows.
+    spare_readings : int
+        Empty rows with formulas ready in that block. With no readings and
+        no spare rows the block is left out.
 
     Returns
     -------
@@ -493,6 +587,9 @@ def add_portable_sheet(workbook, y, x, new_x=(), *, y_power=1.0, x_power=1.0, y_
     (plus 1 under the root for a new observation) with Student's t on n - 2
     degrees of freedom (common practice). The average y is Duan's (1983)
     smearing estimate, written as one SUMPRODUCT over the residual column.
+    x from a measured y is Fieller's interval on the re-expressed scale,
+    taken back end by end (the closed form of
+    :func:`unbend.calibration.fieller`; Draper and Smith 1998, section 3.2).
 
     Examples
     --------
@@ -502,7 +599,7 @@ def add_portable_sheet(workbook, y, x, new_x=(), *, y_power=1.0, x_power=1.0, y_
     >>> ws = add_portable_sheet(wb, [2.0, 3.1, 4.4, 6.2, 8.9], [1, 2, 3, 4, 5], [2.5, 6],
     ...                         y_power=0, invented_data=True)
     >>> ws["B17"].value
-    '=SLOPE($D$56:$D$5055,$E$56:$E$5055)'
+    '=SLOPE($D$66:$D$5065,$E$66:$E$5065)'
     """
     yp = check_power(y_power, "y power")
     xp = check_power(x_power, "x power")
@@ -512,11 +609,15 @@ def add_portable_sheet(workbook, y, x, new_x=(), *, y_power=1.0, x_power=1.0, y_
     nv = [_data_value(v) for v in _column(new_x, "new x")]
     if len(yv) != len(xv):
         raise UnbendError(f"y has {len(yv)} rows but x has {len(xv)}; give columns of the same length.")
-    for nm, k, lo in (("spare_rows", spare_rows, 0), ("spare_new_rows", spare_new_rows, 0)):
+    rv = [_data_value(v) for v in _column(readings, "readings")]
+    for nm, k, lo in (("spare_rows", spare_rows, 0), ("spare_new_rows", spare_new_rows, 0),
+                      ("spare_readings", spare_readings, 0)):
         if not isinstance(k, numbers.Integral) or isinstance(k, bool) or k < lo:
             raise UnbendError(f"{nm} must be a whole number of at least {lo}; got {k!r}.")
     m_rows = len(nv) + spare_new_rows
-    first = PRED_HEADER + m_rows + 4
+    k_inv = len(rv) + spare_readings
+    inv_header = PRED_HEADER + m_rows + 5    # caption and a line of help above it
+    first = PRED_HEADER + m_rows + 4 + (k_inv + 5 if k_inv else 0)
     room = SHEET_ROWS - first + 1  # the sheet's own limit
     if capacity is None:
         capacity = min(room, max(DEFAULT_CAPACITY, len(yv) + spare_rows))
@@ -662,6 +763,8 @@ def add_portable_sheet(workbook, y, x, new_x=(), *, y_power=1.0, x_power=1.0, y_
     pred_last = PRED_HEADER + m_rows
     sh.table(PRED_HEADER, 1, pred_last, _col(NEW_COLUMNS["high_re"]), _unique_table_name(workbook, "UnbendNewX"),
              [_NEW_HEAD[k] for k in new_keys], "TableStyleLight11", header_style=_S_HEAD)
+    if k_inv:
+        _inverse_block(sh, workbook, inv_header, rv, k_inv, first, last, fx=fx, fy=fy, fxre=fxre, fyre=fyre)
 
     # data table: y and x as given, then the working formulas, one block of rows
     sh.text(data_header - 1, 1, DATA_CAPTION + " (blank rows are skipped; columns C to G are formulas)", _S_SECTION)
@@ -681,6 +784,42 @@ def add_portable_sheet(workbook, y, x, new_x=(), *, y_power=1.0, x_power=1.0, y_
 
     _layout(sh, data_header, last)
     return native
+
+
+def _inverse_block(sh, workbook, header: int, rv, k: int, first: int, last: int, *, fx, fy, fxre, fyre) -> None:
+    """The block "x from a measured y": readings typed in column A (and m in B), x with its interval."""
+    lv = _abs(CELL["level"])
+    sh.formula(header - 2, 1, f'="{INV_CAPTION} ("&ROUND({lv}*100,4)&"% intervals): type readings in column A"',
+               _S_SECTION, value="")
+    _wide(sh, header - 1,
+          "The line used backwards, as for a calibration: type a measured y in column A (and in column B how many "
+          "readings of one sample it averages, m; blank = 1). x estimate: where the line meets the reading. x: "
+          "low / high: the x values whose interval for the mean of m new readings contains the reading "
+          "(Fieller's interval), found on the re-expressed scale and taken back end by end, so it is lopsided. "
+          f"'{INV_NOT_BOUNDED}': the slope is not clearly different from 0 at this level, so no closed interval "
+          "exists. For m > 1 type the readings' average; the add-in (UNBEND_INVERSE) averages them on the "
+          "re-expressed scale, which differs slightly when y is re-expressed. Readings outside the standards are "
+          "extrapolation.", style=_S_NOTE)
+    fmt = {"reading": fy, "replicates": "0", "x": fx, "low": fx, "high": fx, "reading_re": fyre, "g": "0.000000",
+           "x_re": fxre, "low_re": fxre, "high_re": fxre}
+    keys = list(INV_COLUMNS)
+    for key in keys:
+        sh.text(header, _col(INV_COLUMNS[key]), _INV_HEAD[key], _S_HEAD)
+    sh.height(header, 46)
+    for i in range(k):
+        r = header + 1 + i
+        c_in = _col(INV_COLUMNS["reading"])
+        if i < len(rv) and rv[i] is not None:
+            sh.value(r, c_in, rv[i], Style(num_format=fy))
+        else:
+            sh.blank(r, c_in, Style(num_format=fy))
+        sh.blank(r, _col(INV_COLUMNS["replicates"]), Style(num_format="0"))
+        for key, text in _inverse_formulas(r, first, last).items():
+            st = Style(num_format=fmt.get(key),
+                       halign={"note": None, "outside": "center"}.get(key, "right"))
+            sh.formula(r, _col(INV_COLUMNS[key]), text, st, value="")
+    sh.table(header, 1, header + k, _col(INV_COLUMNS["high_re"]), _unique_table_name(workbook, "UnbendReadings"),
+             [_INV_HEAD[kk] for kk in keys], "TableStyleLight11", header_style=_S_HEAD)
 
 
 def _col(letter: str) -> int:
@@ -850,7 +989,7 @@ def read_portable(ws) -> tuple[dict, pd.DataFrame]:
     r = PRED_HEADER + 1
     while r <= ws.max_row:
         v = ws[f"{col}{r}"].value
-        if isinstance(v, str) and v.startswith(DATA_CAPTION):
+        if isinstance(v, str) and v.startswith((DATA_CAPTION, INV_CAPTION)):
             break
         if v is not None and v != "":
             rows.append({k: _blank(ws[f"{c}{r}"].value) for k, c in NEW_COLUMNS.items()})
@@ -863,3 +1002,32 @@ def read_portable(ws) -> tuple[dict, pd.DataFrame]:
 def _blank(v):
     """An empty result cell ("" from a formula, saved as an empty cell) reads back as ""."""
     return "" if v is None else v
+
+
+def read_portable_inverse(ws) -> pd.DataFrame:
+    """Read the block "x from a measured y" from a recalculated portable sheet.
+
+    Returns one row per filled reading with the columns of :data:`INV_COLUMNS`
+    (empty results read as ""); an empty frame when the sheet has no such block.
+    """
+    col = INV_COLUMNS["reading"]
+    r, start = PRED_HEADER + 1, None
+    while r <= ws.max_row:
+        v = ws[f"{col}{r}"].value
+        if isinstance(v, str) and v.startswith(DATA_CAPTION):
+            break
+        if isinstance(v, str) and v.startswith(INV_CAPTION):
+            start = r + 3  # caption, help line, header
+            break
+        r += 1
+    rows = []
+    if start is not None:
+        r = start
+        while r <= ws.max_row:
+            v = ws[f"{col}{r}"].value
+            if isinstance(v, str) and v.startswith(DATA_CAPTION):
+                break
+            if v is not None and v != "":
+                rows.append({k: _blank(ws[f"{c}{r}"].value) for k, c in INV_COLUMNS.items()})
+            r += 1
+    return pd.DataFrame(rows, columns=list(INV_COLUMNS), dtype=object)

@@ -567,6 +567,10 @@ def build_report(a: Analysis, path) -> str:
     if a.spread is not None and a.spread.detail is not None:
         _spread_sheet(book, a)
     f = a.fit
+    readings = getattr(a, "readings", None)  # `--readings` (udfs/calibrate.py)
+    if readings is not None:
+        from .calibrate import add_readings_sheet
+        add_readings_sheet(book, readings, f.x_names[0], a.y_name)
     if len(f.x_names) == 1 and getattr(f, "n_censored", 0):
         pass  # the formula sheet refits by least squares, which would take the limits as values: not written
     elif len(f.x_names) == 1:
@@ -574,7 +578,8 @@ def build_report(a: Analysis, path) -> str:
         new = a.predictions[f.x_names[0]].to_numpy()
         add_portable_sheet(book, a.y, a.X[:, 0], new, y_power=f.y_power, x_power=f.x_power,
                            y_start=f.y_expr.start, x_start=f.x_expr.start, level=f.level, invented_data=a.invented,
-                           y_name=a.y_name, x_name=f.x_names[0], title="Model in formulas", capacity=None)
+                           y_name=a.y_name, x_name=f.x_names[0], title="Model in formulas", capacity=None,
+                           readings=() if readings is None else readings.table["reading"].to_numpy())
     for sh in book.sheets[:-1] if len(f.x_names) == 1 and not getattr(f, "n_censored", 0) else book.sheets:
         sh.printable()
     book.close()
