@@ -191,6 +191,19 @@ def _suggest_row(s, rows):
     return [s.what, s.estimate, s.low, s.high, s.rung, s.label, s.n, rows.n_skipped, s.note] + _reading_cells(rows)
 
 
+def _not_estimated_row(what, vals, other, rows):
+    """UNBEND_SUGGEST's row for y or x when a value is 0 or below: no estimate, and why in words."""
+    v = vals[np.isfinite(vals)]
+    k = int(np.sum(v <= 0))
+    start = unbend.propose_start(v.ravel(), 0.0)
+    given = f"(given {'x' if what == 'y' else 'y'} at power {other:g}) "
+    note = (f"{given}Not estimated: the likelihood over the power for {what} needs every {what} above 0, and {k} of "
+            f"{v.size} {'is' if k == 1 else 'are'} not (smallest {float(v.min()):g}). UNBEND_SCAN and UNBEND_FIT take "
+            f"{what}_start: with {what}_start {start:g} every {what} is above 0 and every rung can be tried. "
+            f"Meanwhile the scan's best pair (last row) uses only the rungs these {what} values allow.")
+    return [what, "", "", "", "", "", rows.n_used, rows.n_skipped, note] + _reading_cells(rows)
+
+
 @cell_function(y=_Y, x="Optional x range (one column or a block).")
 def UNBEND_SUGGEST(y, x=None):
     """Table: suggested power for y (and for x) with its 95% interval, the rung to use and a note."""
@@ -200,13 +213,20 @@ def UNBEND_SUGGEST(y, x=None):
         return cells.table(_SUGGEST_HEADER, [_suggest_row(s, rd)])
     yv, X, rd = _yx(y, x)
     yp, xp = _cache.get_or_compute(("pair", yv, X, None, None, 0.0, 0.0), lambda: unbend.best_pair(yv, X))
-    sy = _cache.get_or_compute(("sy", yv, X, xp), lambda: unbend.suggest_power(yv, X, x_power=xp))
-    sx = _cache.get_or_compute(("sx", yv, X, yp), lambda: unbend.suggest_x_power(yv, X, y_power=yp))
     table = _cache.get_or_compute(("scan", yv, X, 0.0, 0.0), lambda: unbend.scan(yv, X))
-    rows = [_suggest_row(sy, rd), _suggest_row(sx, rd)]
     note = _SUGGEST_HEADER.index("note")
-    rows[0][note] = f"(given x at power {xp:g}) {rows[0][note]} {fitted_rung_words(sy, yp, xp, table)}"
-    rows[1][note] = f"(given y at power {yp:g}) {rows[1][note]} {fitted_rung_words(sx, xp, yp, table)}"
+    rows = []
+    for what, own, vals, fn in (("y", yp, yv, lambda: unbend.suggest_power(yv, X, x_power=xp)),
+                                ("x", xp, X, lambda: unbend.suggest_x_power(yv, X, y_power=yp))):
+        other = xp if what == "y" else yp
+        if np.any(vals[np.isfinite(vals)] <= 0):  # the power's likelihood needs every value above 0: say so
+            rows.append(_not_estimated_row(what, vals, other, rd))
+            continue
+        s = _cache.get_or_compute(("s" + what, yv, X, other), fn)
+        row = _suggest_row(s, rd)
+        row[note] = f"(given {'x' if what == 'y' else 'y'} at power {other:g}) {row[note]} " \
+                    f"{fitted_rung_words(s, own, other, table)}"
+        rows.append(row)
     rows.append(["scan's best pair", "", "", "", "", f"y {unbend.rung_label(yp)}, x {unbend.rung_label(xp)}",
                  "", "", "the pair UNBEND_FIT and UNBEND_PREDICT use when the powers are left blank"])
     return cells.table(_SUGGEST_HEADER, rows)
