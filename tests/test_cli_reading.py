@@ -187,3 +187,16 @@ def unbend_rung(p):
     import unbend
 
     return unbend.rung_label(p)
+
+
+def test_skipped_examples_name_row_column_and_value(tmp_path):
+    """The report and its refusal show a skipped value as "row 3, y: 'n/a'" (invented rows)."""
+    ok = tmp_path / "na.csv"
+    ok.write_text("x,y\n1,1.2\n2,n/a\n3,2.9\n4,4.1\n5,5.2\n6,6.1\n7,7.3\n", encoding="utf-8")
+    code, out, err = run(["report", ok, "--y", "y", "--x", "x", "--quiet", "--out", tmp_path / "r.xlsx"])
+    assert code == 0, err
+    assert "Skipped 1 row of 7: text that is not a number: 1 (row 3, y: 'n/a')." in out
+    few = tmp_path / "few.csv"
+    few.write_text("x,y\n1,1.2\n2,n/a\n3,x\n", encoding="utf-8")
+    line = one_line(*run(["report", few, "--y", "y", "--x", "x", "--quiet", "--out", tmp_path / "f.xlsx"]))
+    assert "(such as row 3, y: 'n/a')" in line, line

