@@ -447,18 +447,15 @@ def _fit(y, x, y_power, x_power, y_start, x_start, level, log10, y_family, x_nam
         bend = replace(bend, y_lik=likelihood_direction(yu, Xu, y_t, x_t, "y"),
                        x_lik=likelihood_direction(yu, Xu, y_t, x_t, "x") if k == 1 else 0)
 
-    table = pd.DataFrame({"row": np.flatnonzero(rows.used) + 1, "y": yu})
+    # built from one dict (a repeated name keeps its first place and takes the later column, as assignment would)
+    cols = {"row": np.flatnonzero(rows.used) + 1, "y": yu}
     for j, nm in enumerate(names):
-        table[nm] = Xu[:, j]
-    table["y_re"] = yt
+        cols[nm] = Xu[:, j]
+    cols["y_re"] = yt
     for j, nm in enumerate(names):
-        table[f"{nm}_re"] = Xt[:, j]
-    table["fitted"] = fitted
-    table["residual"] = resid
-    table["standardized"] = std
-    table["studentized"] = stud
-    table["leverage"] = h
-    table["cooks_distance"] = cook
+        cols[f"{nm}_re"] = Xt[:, j]
+    cols.update(fitted=fitted, residual=resid, standardized=std, studentized=stud, leverage=h, cooks_distance=cook)
+    table = pd.DataFrame(cols)
 
     return LineFit(
         y_expr=y_t, x_expr=x_t, coef=coef, se=se, tvalues=tv, pvalues=pv,

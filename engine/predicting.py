@@ -118,17 +118,20 @@ def mean_cautions(fit, eta: np.ndarray, median: np.ndarray, mean: np.ndarray) ->
     out = [""] * len(median)
     if t.family == "ladder" and t.power == 1.0:
         return out
-    neff = smearing_effective_terms(fit, eta)
+    neff = np.asarray(smearing_effective_terms(fit, eta), dtype=float)
     few_below = max(MEAN_FEW_MIN, MEAN_FEW_SHARE * n)
-    for i in range(len(median)):
-        if not np.isfinite(median[i]):
-            continue
-        unbounded = not np.isfinite(mean[i])
-        with np.errstate(all="ignore"):
-            ratio = float(mean[i] / median[i]) if median[i] > 0 else float("nan")
-        far = bool(np.isfinite(ratio) and ratio > MEAN_FAR)
-        few = bool(np.isfinite(neff[i]) and neff[i] < few_below)
-        out[i] = mean_caution(unbounded=unbounded, n=n, far=far, few=few, past_end=t.family == "ladder" and t.power < 0)
+    med = np.asarray(median, dtype=float)
+    avg = np.asarray(mean, dtype=float)
+    with np.errstate(all="ignore"):
+        ratio = np.where(med > 0, avg / np.where(med > 0, med, 1.0), np.nan)
+    # the three flags as one code per row; each distinct code is worded once (a spilled table has thousands of rows)
+    code = ((~np.isfinite(avg)).astype(np.int8) * 4 + (np.isfinite(ratio) & (ratio > MEAN_FAR)).astype(np.int8) * 2
+            + (np.isfinite(neff) & (neff < few_below)).astype(np.int8))
+    past_end = t.family == "ladder" and t.power < 0
+    words = {int(c): mean_caution(unbounded=bool(c & 4), n=n, far=bool(c & 2), few=bool(c & 1), past_end=past_end)
+             for c in np.unique(code)}
+    for i in np.flatnonzero(np.isfinite(med)):
+        out[i] = words[int(code[i])]
     return out
 
 

@@ -263,7 +263,7 @@ def test_report_reads_nd_with_a_limit_column(files, tmp_path):
     used = np.arange(x.size) != 3  # the dose written as "<1" is skipped: censoring applies to y only
     nc = int((cens2 & used).sum())
     assert f"{nc} values of y below a detection limit" in words
-    assert "Skipped 1 row of 40: below a detection limit: 1 (row 6 dose '<1')" in words
+    assert "Skipped 1 row of 40: below a detection limit: 1 (row 6, dose: '<1')" in words
     assert "censoring applies to y only" in words
     assert "2 different limits (1.2 to 1.5)" in words  # the engine's caution about several limits
     z = np.log(np.where(cens2, limits, y))[used]

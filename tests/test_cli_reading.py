@@ -116,3 +116,87 @@ def test_header_row_given(book, tmp_path):
 def test_bad_choices_are_refused(book, bad):
     code, out, err = run(["report", book[0], "--y", "flow", "--x", "speed", *bad])
     assert code == 2 and "invalid choice" in err and "Traceback" not in err
+
+
+# ----------------------------------------------------------------------------- dates as x
+@pytest.fixture(scope="module")
+def seal_dates(tmp_path_factory):
+    """Invented weekly wear readings of a pump seal (not measurements): real date cells and ISO dates in a CSV."""
+    import datetime as dt
+
+    rng = np.random.default_rng(3)
+    d0 = dt.datetime(2025, 1, 6)
+    days = np.arange(0, 40 * 7, 7).astype(float)
+    wear = np.round(2.0 * np.sqrt(days + 5) * rng.lognormal(0, 0.05, days.size), 4)
+    folder = tmp_path_factory.mktemp("dates")
+    wb = openpyxl.Workbook()
+    ws = wb.active
+    ws.append(["date", "wear"])
+    for d, v in zip(days, wear):
+        ws.append([d0 + dt.timedelta(days=int(d)), float(v)])  # openpyxl writes real date cells
+    wb.save(folder / "seal.xlsx")
+    with open(folder / "seal.csv", "w", encoding="utf-8") as fh:
+        fh.write("date,wear\n" + "".join(f"{(d0 + dt.timedelta(days=int(d))).date().isoformat()},{v}\n"
+                                         for d, v in zip(days, wear)))
+    return folder, days, wear
+
+
+@pytest.mark.parametrize("name", ["seal.xlsx", "seal.csv"])
+def test_dates_as_x_run_to_the_end_and_say_what_the_origin_means(seal_dates, name, monkeypatch):
+    from unbend.udfs import plots, report
+
+    folder, days, wear = seal_dates
+    seen = []
+    original = report.write_plots
+    monkeypatch.setattr(report, "write_plots", lambda a, d: (seen.append(a), original(a, d))[1])
+    code, out, err = run(["report", folder / name, "--y", "wear", "--x", "date", "--quiet",
+                          "--out", folder / f"{name}_rep.xlsx", "--overwrite"])
+    assert code == 0 and "Traceback" not in out + err and "unexpected" not in (out + err).lower(), err
+    a = seen[-1]
+    # known truth: x is the days since the first date, exactly
+    np.testing.assert_array_equal(a.fit.residuals[a.x_names[0]].to_numpy(), days)
+    text = " ".join(out.split())
+    # only the rungs the data allow: 6 y rungs x 3 x rungs (log, reciprocal root and reciprocal need x > 0)
+    assert len(a.scan) == 18 and set(a.scan.x_power) == {2.0, 1.0, 0.5}
+    assert "ranks first of 18" in text
+    start = report._nice_start(days, 0.0)
+    assert ("so the scan leaves out log (0), reciprocal root (-0.5) and reciprocal (-1), which need every date "
+            f"(days since 2025-01-06) above 0. To include them, add a start: --x-start {start:g}") in text
+    # the origin, in words, and what a rung other than raw assumes
+    assert "date counts days from 2025-01-06, the first date in the column, not from a natural zero" in text
+    rung = unbend_rung(a.fit.x_power)
+    if a.fit.x_power != 1:
+        assert f"The fit uses {rung} of date, which treats 2025-01-06 as the start of the process" in text
+    assert "Log, reciprocal root and reciprocal need such a start, because the first date counts as 0." in text
+    # the axis labels say the origin
+    d = plots.plot_data(a)
+    assert d["x_name"] == "date (days since 2025-01-06)" and "days since 2025-01-06" in d["x_label_re"]
+    # the start the note names brings every rung back
+    code, out, err = run(["report", folder / name, "--y", "wear", "--x", "date", "--quiet", "--x-start", f"{start:g}",
+                          "--out", folder / f"{name}_rep2.xlsx", "--overwrite"])
+    assert code == 0 and len(seen[-1].scan) == 36, err
+    text = " ".join(out.split())
+    assert f"--x-start {start:g} counts from {start:g} days before 2025-01-06." in text
+    f2 = seen[-1].fit
+    if f2.x_power != 1:
+        assert (f"The fit uses {unbend_rung(f2.x_power)} of date, which treats {start:g} days before 2025-01-06 as "
+                "the start of the process") in text
+
+
+def unbend_rung(p):
+    import unbend
+
+    return unbend.rung_label(p)
+
+
+def test_skipped_examples_name_row_column_and_value(tmp_path):
+    """The report and its refusal show a skipped value as "row 3, y: 'n/a'" (invented rows)."""
+    ok = tmp_path / "na.csv"
+    ok.write_text("x,y\n1,1.2\n2,n/a\n3,2.9\n4,4.1\n5,5.2\n6,6.1\n7,7.3\n", encoding="utf-8")
+    code, out, err = run(["report", ok, "--y", "y", "--x", "x", "--quiet", "--out", tmp_path / "r.xlsx"])
+    assert code == 0, err
+    assert "Skipped 1 row of 7: text that is not a number: 1 (row 3, y: 'n/a')." in out
+    few = tmp_path / "few.csv"
+    few.write_text("x,y\n1,1.2\n2,n/a\n3,x\n", encoding="utf-8")
+    line = one_line(*run(["report", few, "--y", "y", "--x", "x", "--quiet", "--out", tmp_path / "f.xlsx"]))
+    assert "(such as row 3, y: 'n/a')" in line, line

@@ -311,3 +311,31 @@ def test_engine_and_rules_agree_on_clean_numbers():
     f = unbend.fit(np.array(y), np.array(x), y_power=0.5, x_power=1)
     d = _label_values(U.UNBEND_FIT(y, x, 0.5, 1))
     assert d["slope x"] == f.coef[1] and d["rows skipped"] == 0 and d["values read from text"] == 0
+
+
+def test_header_above_numbers_fast_pass_reads_as_the_full_rules():
+    """A text on top of plain numbers takes a one-pass route; it must give exactly the full rules' reading
+    (the top text is a header only when the full rules say so: not a number, limit, date or missing word)."""
+    import dataclasses
+    import itertools
+
+    from unbend.udfs import intake
+
+    heads = ["y", "load (kg)", "n/a", "NA", "12.5", "<0.5", "2024-03-01", "Total", "mg/L", "", " ", "-", "#N/A",
+             "1,5", "45%", "ND", "TRUE", "€"]
+    bodies = [[1.5, 2.0, 3.25], [1.0, None, 2.0, float("inf"), 3.0], [0.0, 1.0, 2.0], [1, 2, 3], [None, None, 1.0],
+              [float("nan"), 2.0, 3.0], [None], [float("inf")], [True, 2.0], [1.0, "mg/L", 2.0],
+              [np.float64(2.5), 3]]
+    for h, b in itertools.product(heads, bodies):
+        flat = [h] + b
+        fast = intake.read_flat(list(flat), "v")
+        full = intake._read_mixed(list(flat), "v", None, None, {}, "", True)
+        for f in dataclasses.fields(full):
+            a, c = getattr(fast, f.name), getattr(full, f.name)
+            if isinstance(a, np.ndarray):
+                assert np.array_equal(a, c, equal_nan=True) and a.dtype == c.dtype, (flat, f.name)
+            else:
+                assert a == c, (flat, f.name, a, c)
+    # and the route is taken: a header above 10^4 numbers is read as header + numbers
+    r = intake.read_flat(["flow"] + [float(v) for v in range(1, 10_001)], "flow")
+    assert r.reasons[0] == intake.HEADER and (r.reasons[1:] == intake.USED).all() and r.values[-1] == 10_000.0

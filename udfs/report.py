@@ -300,6 +300,7 @@ def summary_lines(a: Analysis) -> list:
         out[1] = (f"y = {a.y_name}; x = {', '.join(a.x_names)}. Rows used: {rd.n_used}; rows skipped: "
                   f"{rd.n_skipped} (row numbers are the rows of {a.reading.source}).")
         out.extend(a.reading.lines())
+        out.extend(_date_origin_lines(a))
     elif f.skipped:
         out.append("Skipped: " + "; ".join(f"row {r}: {why}" for r, why in f.skipped[:5])
                    + ("; ..." if len(f.skipped) > 5 else "") + ".")
@@ -333,6 +334,42 @@ def summary_lines(a: Analysis) -> list:
         out.append(f"Spread against level across groups: power {_fmt(a.spread.estimate)} "
                    f"({_fmt(a.spread.low)} to {_fmt(a.spread.high)}); rung {a.spread.label}. {a.spread.note}")
     out.append("CAUTION: " + CAUTION)
+    return out
+
+
+def _date_origin_lines(a: Analysis) -> list:
+    """For a y or x read from dates: the count starts at the column's first date, which is a choice, not a zero.
+
+    Every rung but raw depends on that choice; the rungs that need values above 0 need a start, since the first
+    date counts as 0. Says which rung the fit uses and what a start means in days (or hours).
+    """
+    f, out = a.fit, []
+    for c in a.reading.rows.columns:
+        if not c.date_unit or c.date_origin is None:
+            continue
+        if c.label == a.y_name:
+            expr, opt, what = f.y_expr, "--y-start", "y"
+        elif c.label in a.x_names:
+            expr, opt, what = f.x_expr, "--x-start", "x"
+        else:
+            continue
+        origin = c.label[len(c.name) + 2:-1].split(" since ", 1)[-1]
+        unit = c.date_unit
+        s = (f"{c.name} counts {unit} from {origin}, the first date in the column, not from a natural zero. "
+             f"Raw {c.name} (power 1) does not depend on that choice; every other rung does. ")
+        if expr.power == 1:
+            s += f"The fit uses raw {c.name}. "
+        else:
+            s += (f"The fit uses {unbend.rung_label(expr.power)} of {c.name}, which treats "
+                  + (f"{origin}" if not expr.start else f"{expr.start:g} {unit} before {origin}")
+                  + f" as the start of the process: use it only if that is so. ")
+        if expr.start:
+            s += f"{opt} {expr.start:g} counts from {expr.start:g} {unit} before {origin}."
+        else:
+            s += (f"If the process began earlier (an installation or start-up day), give the {unit} between as a "
+                  f"start: {opt} N counts from N {unit} before {origin}. Log, reciprocal root and reciprocal need "
+                  f"such a start, because the first date counts as 0.")
+        out.append(s)
     return out
 
 

