@@ -392,7 +392,7 @@ def spread_power(values, groups, *, level=0.95, start=0.0, rungs=None) -> PowerS
         raise UnbendError(f"values has {v.size} rows but groups has {g.size}; give ranges of the same length.")
     ok = np.isfinite(v) & np.array([not _missing(x) for x in g], dtype=bool)
     rows_skipped = int((~ok).sum())
-    keys = pd.Series(g[ok]).astype(str).to_numpy()
+    keys = np.array([str(k) for k in g[ok]], dtype=object)  # labels as text, whatever their type
     vv = v[ok]
     table = []
     for key in pd.unique(keys):

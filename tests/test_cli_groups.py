@@ -152,7 +152,7 @@ def test_rows_used_and_skipped_by_reason(network, files, runs, kind):
     if kind == "parquet":  # record i (from 0) is row i + 2: the column names are row 1
         assert "the first record is row 2" in t
         first_blank = int(np.flatnonzero(network[Y].isna().to_numpy())[0])
-        assert f"row {first_blank + 2} {Y} blank" in t
+        assert f"row {first_blank + 2}, {Y}: blank" in t
     # the workbook says the same
     items = dict(_items(openpyxl.load_workbook(target)["Summary"]))
     assert items["rows used"] == n_used

@@ -115,7 +115,7 @@ def test_readings_column_matches_the_engine(files, column_run):
     # the printed summary: every reading counted, the skipped ones by reason with their rows
     assert f"Readings used: {len(used)}; rows skipped: 2." in " ".join(out.split())
     flat = " ".join(out.split())
-    assert "row 5 sample signal 'n/a'" in flat and "row 7 sample signal blank" in flat
+    assert "row 5, sample signal: 'n/a'" in flat and "row 7, sample signal: blank" in flat
     assert f"{int(e['outside_range'].sum())} outside the standards' conc range" in flat
     closed = int((np.isfinite(e["low"]) & np.isfinite(e["high"])).sum())
     assert f"{closed} closed, {len(used) - closed} with an end that does not exist" in flat
@@ -185,7 +185,7 @@ def test_readings_file_first_numeric_column(files):
     assert code == 0, err
     flat = " ".join(out.split())
     assert "column 'counts' (the first column with a number)" in flat
-    assert "Readings used: 2; rows skipped: 1." in flat and "row 3 counts 'n/a'" in flat
+    assert "Readings used: 2; rows skipped: 1." in flat and "row 3, counts: 'n/a'" in flat
     _, table, _ = _readings_sheet(out_path)
     assert [r[1] for r in table] == [1500.0, 7000.0]
 

