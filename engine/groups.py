@@ -373,19 +373,23 @@ def _verdicts(block, out, ty, tx) -> list:
     """
     from .power import likelihood_direction
     from .wording import Bend
+    from scipy import special
     res = []
     slopes, ses = np.asarray(out["slope"], float), np.asarray(out["se_slope"], float)
+    ns = np.asarray(out["n"], float)
+    with np.errstate(all="ignore"):  # the slope's two-sided t p-value, all groups at once (as fit's pvalues)
+        trend = np.where(ns > 2, 2 * special.stdtr(ns - 2, -np.abs(slopes / ses)), np.nan)
+    with np.errstate(all="ignore"):
+        y_low = (np.minimum.reduceat(block.y, block.starts) + ty.start).tolist() if block.G else []
+        x_low = (np.minimum.reduceat(block.x, block.starts) + tx.start).tolist() if block.G else []
+        signs = np.where(np.isfinite(slopes), np.sign(slopes), 0.0).tolist()
+    trend = trend.tolist()
     for i, (r2, curv, pat, spr, nor, n) in enumerate(B.checks(out)):
-        a, b = int(block.starts[i]), int(block.starts[i] + block.counts[i])
-        yg, xg = block.y[a:b], block.x[a:b]
-        with np.errstate(all="ignore"):
-            tv = slopes[i] / ses[i]
-            trend_p = float(2 * stats.t.sf(abs(tv), n - 2)) if n > 2 else float("nan")
-            sign = float(np.sign(slopes[i])) if np.isfinite(slopes[i]) else 0.0
-            bend = Bend(y_power=ty.power, x_power=tx.power, slope_sign=sign, trend_p=trend_p, n_x=1, y_name="y",
-                        x_name="x", y_family=ty.family, y_low=float(np.min(yg) + ty.start),
-                        x_low=float(np.min(xg) + tx.start))
+        bend = Bend(y_power=ty.power, x_power=tx.power, slope_sign=signs[i], trend_p=trend[i], n_x=1, y_name="y",
+                    x_name="x", y_family=ty.family, y_low=y_low[i], x_low=x_low[i])
         if (curv.ran and not curv.passed) or (spr.ran and not spr.passed):
+            a, b = int(block.starts[i]), int(block.starts[i] + block.counts[i])
+            yg, xg = block.y[a:b], block.x[a:b]
             X1 = xg[:, None]
             bend = replace(bend, y_lik=likelihood_direction(yg, X1, ty, tx, "y"),
                            x_lik=likelihood_direction(yg, X1, ty, tx, "x"))
