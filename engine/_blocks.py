@@ -18,7 +18,9 @@ from __future__ import annotations
 import threading
 
 import numpy as np
-from scipy import special, stats
+from scipy import special
+
+from . import _dist as stats
 
 from .diagnostics import ALPHA, PATTERN_ALPHA, Check, dagostino_pearson
 

@@ -9,7 +9,9 @@ digits as ``p`` nears 0.
 from __future__ import annotations
 
 import numpy as np
-from scipy import optimize, stats
+from scipy import optimize
+
+from . import _dist as stats
 
 from ._validation import UnbendError
 

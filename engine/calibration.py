@@ -40,7 +40,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 import pandas as pd
-from scipy import stats
+from . import _dist as stats
 
 from ._validation import FEW_ROWS, UnbendError, as_matrix, as_vector, check_level
 

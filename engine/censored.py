@@ -31,7 +31,9 @@ from dataclasses import dataclass, field, replace
 
 import numpy as np
 import pandas as pd
-from scipy import linalg, special, stats
+from scipy import linalg, special
+
+from . import _dist as stats
 
 from ._validation import FEW_ROWS, UnbendError, as_censored, as_matrix, as_vector, check_level, usable_rows
 from .diagnostics import ALPHA, PATTERN_ALPHA, Check, make_check, normality_test, pattern_bins, verdict

@@ -5,7 +5,9 @@ import functools
 from dataclasses import dataclass
 
 import numpy as np
-from scipy import special, stats
+from scipy import special
+
+from . import _dist as stats
 
 __all__ = ["Check", "curvature_test", "pattern_bins", "pattern_test", "spread_test", "normality_test", "verdict"]
 

@@ -5,7 +5,9 @@ from dataclasses import dataclass, field, replace
 
 import numpy as np
 import pandas as pd
-from scipy import linalg, stats
+from scipy import linalg
+
+from . import _dist as stats
 
 from ._validation import FEW_ROWS, UnbendError, as_matrix, as_vector, check_level, usable_rows
 from .diagnostics import Check, curvature_test, normality_test, pattern_bins, pattern_test, spread_test, verdict

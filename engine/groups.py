@@ -16,7 +16,7 @@ from dataclasses import dataclass, field, replace
 
 import numpy as np
 import pandas as pd
-from scipy import stats
+from . import _dist as stats
 
 from . import _blocks as B
 from ._likelihood import SEARCH_LIMIT

@@ -6,7 +6,9 @@ from dataclasses import dataclass, field
 
 import numpy as np
 import pandas as pd
-from scipy import optimize, stats
+from scipy import optimize
+
+from . import _dist as stats
 
 from ._validation import (FEW_ROWS, DomainError, UnbendError, as_matrix, as_vector, check_level,
                           check_number, check_power, check_varies, usable_rows)

@@ -7,7 +7,7 @@ import math
 
 import numpy as np
 import pandas as pd
-from scipy import stats
+from . import _dist as stats
 
 from ._validation import FEW_ROWS, as_matrix, check_level
 
