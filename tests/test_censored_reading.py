@@ -8,8 +8,6 @@ the sentences repeat the fit's own numbers.
 """
 from __future__ import annotations
 
-import contextlib
-import io
 import math
 import re
 
@@ -21,6 +19,8 @@ from scipy import optimize, stats
 import unbend
 from unbend.udfs import cli, intake
 from unbend.udfs import functions as U
+
+from cli_helpers import run
 
 
 # ----------------------------------------------------------------------------- an independent reference
@@ -52,13 +52,6 @@ def survey(n=40, limit=1.5, seed=12):
     x = np.round(rng.uniform(1, 120, n), 1)
     y = np.round(np.exp(-1.0 + 0.6 * np.log(x) + rng.normal(0, 0.35, n)), 3)
     return x, y, y < limit
-
-
-def run(argv):
-    out, err = io.StringIO(), io.StringIO()
-    with contextlib.redirect_stdout(out), contextlib.redirect_stderr(err):
-        code = cli.main([str(a) for a in argv])
-    return code, out.getvalue(), err.getvalue()
 
 
 def flat(text):

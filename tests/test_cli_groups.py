@@ -9,9 +9,7 @@ printed sentences is read back against the fit.
 """
 from __future__ import annotations
 
-import contextlib
 import csv
-import io
 import math
 import re
 import sys
@@ -27,21 +25,9 @@ from unbend.demo_data import ODD_STATION, gauging_network
 from unbend.udfs import cli
 from unbend.udfs import groups_report as G
 
+from cli_helpers import run, one_line
+
 Y, X, BY = "sediment_t_per_day", "discharge_m3s", "station"
-
-
-def run(argv):
-    out, err = io.StringIO(), io.StringIO()
-    with contextlib.redirect_stdout(out), contextlib.redirect_stderr(err):
-        code = cli.main([str(a) for a in argv])
-    return code, out.getvalue(), err.getvalue()
-
-
-def one_line(code, out, err):
-    lines = [ln for ln in err.splitlines() if ln.strip()]
-    assert code == cli.EXIT_BAD_INPUT and len(lines) == 1 and lines[0].startswith("unbend:"), err
-    assert "Traceback" not in out + err
-    return lines[0]
 
 
 def flat(text: str) -> str:

@@ -6,28 +6,13 @@ the command uses are the rows written, the messages name the option to type.
 """
 from __future__ import annotations
 
-import contextlib
-import io
 
 import numpy as np
 import openpyxl
 import pytest
 
-from unbend.udfs import cli
 
-
-def run(argv):
-    out, err = io.StringIO(), io.StringIO()
-    with contextlib.redirect_stdout(out), contextlib.redirect_stderr(err):
-        code = cli.main([str(a) for a in argv])
-    return code, out.getvalue(), err.getvalue()
-
-
-def one_line(code, out, err):
-    lines = [ln for ln in err.splitlines() if ln.strip()]
-    assert code == cli.EXIT_BAD_INPUT and len(lines) == 1 and lines[0].startswith("unbend:"), err
-    assert "Traceback" not in out + err
-    return lines[0]
+from cli_helpers import run, one_line
 
 
 @pytest.fixture(scope="module")

@@ -8,8 +8,6 @@ recomputed here from statsmodels' OLS and the quadratic of Fieller's interval.
 """
 from __future__ import annotations
 
-import contextlib
-import io
 import math
 
 import numpy as np
@@ -19,22 +17,9 @@ import statsmodels.api as sm
 from scipy import stats
 
 import unbend
-from unbend.udfs import cli
 from unbend.udfs.portable import read_portable_inverse  # noqa: F401  (the block is checked by tests/test_portable_inverse.py)
 
-
-def run(argv):
-    out, err = io.StringIO(), io.StringIO()
-    with contextlib.redirect_stdout(out), contextlib.redirect_stderr(err):
-        code = cli.main([str(a) for a in argv])
-    return code, out.getvalue(), err.getvalue()
-
-
-def one_line(code, out, err):
-    lines = [ln for ln in err.splitlines() if ln.strip()]
-    assert code == cli.EXIT_BAD_INPUT and len(lines) == 1 and lines[0].startswith("unbend:"), err
-    assert "Traceback" not in out + err
-    return lines[0]
+from cli_helpers import run, one_line
 
 
 READINGS = [16670.0, 1323.0, "n/a", 5580.0, None, 2895.0, 722.0, 41000.0, 300.0]  # 41000: above the standards
