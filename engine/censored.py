@@ -38,7 +38,7 @@ from . import _dist as stats
 from ._validation import FEW_ROWS, UnbendError, as_censored, as_matrix, as_vector, check_level, usable_rows
 from .diagnostics import ALPHA, PATTERN_ALPHA, Check, make_check, normality_test, pattern_bins, verdict
 from .express import Reexpression
-from .fitting import CAUTION, VIF_WARN, LineFit, _design, _word
+from .fitting import CAUTION, VIF_WARN, LineFit, _design, _names, _word
 
 __all__ = ["CensoredFit", "CensoredMean", "fit_censored", "censored_mean", "half_limit", "censoring_cautions",
            "predict_censored", "normal_mean", "suggest_power_censored", "suggest_x_power_censored",
@@ -657,22 +657,6 @@ def _fit_censored(y, x, censored, y_power, x_power, y_start, x_start, level, log
     core = _core(zt, Xt, cens)
     names, y_name = _names(x, y, x_names, y_name, k)
     return _build(core, y_t, x_t, yu, Xu, cens, limits, rows, level, warnings, names, y_name)
-
-
-def _names(x, y, x_names, y_name, k):
-    if x_names is None and hasattr(x, "columns"):
-        x_names = [str(c) for c in x.columns]
-    elif x_names is None and hasattr(x, "name") and isinstance(getattr(x, "name"), str) and k == 1:
-        x_names = [x.name]
-    if y_name is None:
-        y_name = y.name if isinstance(getattr(y, "name", None), str) else "y"
-    if x_names is not None and (isinstance(x_names, (str, bytes)) or not hasattr(x_names, "__iter__")):
-        raise UnbendError("x_names must be a list of names, one per x column, such as ['flow'].")
-    names = tuple(str(nm) for nm in x_names) if x_names is not None else (
-        ("x",) if k == 1 else tuple(f"x{i + 1}" for i in range(k)))
-    if len(names) != k:
-        raise UnbendError(f"x_names has {len(names)} name(s) but x has {k} column(s); give one name per x column.")
-    return names, str(y_name)
 
 
 def _coef_and_cov(core: _Core):

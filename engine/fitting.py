@@ -219,6 +219,23 @@ def _bend(y_t, x_t, coef, pvalues, r2, n, df, names, y_name, y_low, x_low) -> Be
                 x_name=names[0] if k == 1 else _join(names), y_family=y_t.family, y_low=y_low, x_low=x_low)
 
 
+def _names(x, y, x_names, y_name, k):
+    """The x column names (given, from a DataFrame or Series, or x / x1, x2 ...) and the y name, checked."""
+    if x_names is None and hasattr(x, "columns"):
+        x_names = [str(c) for c in x.columns]
+    elif x_names is None and hasattr(x, "name") and isinstance(getattr(x, "name"), str) and k == 1:
+        x_names = [x.name]
+    if y_name is None:
+        y_name = y.name if isinstance(getattr(y, "name", None), str) else "y"
+    if x_names is not None and (isinstance(x_names, (str, bytes)) or not hasattr(x_names, "__iter__")):
+        raise UnbendError("x_names must be a list of names, one per x column, such as ['flow'].")
+    names = tuple(str(nm) for nm in x_names) if x_names is not None else (
+        ("x",) if k == 1 else tuple(f"x{i + 1}" for i in range(k)))
+    if len(names) != k:
+        raise UnbendError(f"x_names has {len(names)} name(s) but x has {k} column(s); give one name per x column.")
+    return names, str(y_name)
+
+
 def _join(names) -> str:
     return ", ".join(names[:-1]) + " and " + names[-1]
 
@@ -423,18 +440,7 @@ def _fit(y, x, y_power, x_power, y_start, x_start, level, log10, y_family, x_nam
     pat = pattern_test(resid_s, pattern_bins(Xu[:, 0] if k == 1 else fitted_s))
     spr = spread_test(A[:, 1:], resid_s, fitted_s)
     nor = normality_test(resid_s)
-    if x_names is None and hasattr(x, "columns"):
-        x_names = [str(c) for c in x.columns]
-    elif x_names is None and hasattr(x, "name") and isinstance(getattr(x, "name"), str) and k == 1:
-        x_names = [x.name]
-    if y_name is None:
-        y_name = y.name if isinstance(getattr(y, "name", None), str) else "y"
-    if x_names is not None and (isinstance(x_names, (str, bytes)) or not hasattr(x_names, "__iter__")):
-        raise UnbendError("x_names must be a list of names, one per x column, such as ['flow'].")
-    names = tuple(str(nm) for nm in x_names) if x_names is not None else (
-        ("x",) if k == 1 else tuple(f"x{i + 1}" for i in range(k)))
-    if len(names) != k:
-        raise UnbendError(f"x_names has {len(names)} name(s) but x has {k} column(s); give one name per x column.")
+    names, y_name = _names(x, y, x_names, y_name, k)
 
     # log-likelihood in original y units (Jacobian of the y re-expression included)
     with np.errstate(divide="ignore"):

@@ -196,10 +196,11 @@ def _model_choices(args) -> dict:
 
 
 # ----------------------------------------------------------------------------- report: the command
-def _out_path(args, data: str) -> str:
+def _out_path(args, data: str, default_suffix: str = "_unbend_report.xlsx") -> str:
+    """--out checked (a .xlsx, never the input), or DATA plus ``default_suffix`` beside the data."""
     from .outputs import same_file
 
-    out = os.path.abspath(args.out) if args.out else os.path.splitext(data)[0] + "_unbend_report.xlsx"
+    out = os.path.abspath(args.out) if args.out else os.path.splitext(data)[0] + default_suffix
     if not out.lower().endswith(".xlsx"):
         raise OptionError("--out must name a .xlsx file.")
     if os.path.exists(data) and same_file(out, data):

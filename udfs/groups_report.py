@@ -512,15 +512,8 @@ def print_summary(a: GroupsAnalysis) -> None:
 
 
 def out_path(args, data: str) -> str:
-    from .cli import OptionError
-    from .outputs import same_file
-
-    out = os.path.abspath(args.out) if args.out else os.path.splitext(data)[0] + "_unbend_groups.xlsx"
-    if not out.lower().endswith(".xlsx"):
-        raise OptionError("--out must name a .xlsx file.")
-    if os.path.exists(data) and same_file(out, data):
-        raise OptionError("--out names the input file; unbend never writes over its input. Choose another name.")
-    return out
+    from .cli import _out_path
+    return _out_path(args, data, "_unbend_groups.xlsx")
 
 
 def cmd_groups(args) -> int:
