@@ -216,7 +216,7 @@ def _censored_of(reading):
 
 def cmd_report(args) -> int:
     from .outputs import ReportFiles
-    from .plots import PLOT_FILES
+    from .plots import PLOT_FILES, Drawer
 
     prog = Progress(args.quiet)
     data = os.path.abspath(args.data)
@@ -225,18 +225,20 @@ def cmd_report(args) -> int:
     if args.readings and len(args.x) != 1:  # before any work (the check in _back_calculate stays)
         raise OptionError(f"--readings reads x back from a line with one x; {len(args.x)} --x columns were given.")
     with ReportFiles(out, PLOT_FILES, overwrite=args.overwrite) as files:  # checks --out before any work
-        from .report import analyse, write_plots, write_report
+        with Drawer() as drawer:  # a second process loads matplotlib now, while this one reads and fits
+            from .plots import plot_data
+            from .report import analyse, write_report
 
-        reading, df, ycol, xcols, gcol = _read_input(args, prog)
-        prog.step("choosing powers and scanning the rungs")
-        a = analyse(df, ycol, xcols, gcol, source=reading.source, censored=_censored_of(reading), **choices)
-        a.reading = reading
-        if args.readings:  # issue 13: x read back from measured y (udfs/calibrate.py)
-            a.readings = _back_calculate(args, data, reading, a, choices["level"], prog)
-        prog.step("writing the report workbook")
-        write_report(a, files.staged_workbook)
-        prog.step("drawing the plots")
-        write_plots(a, files.staged_plots)
+            reading, df, ycol, xcols, gcol = _read_input(args, prog)
+            prog.step("choosing powers and scanning the rungs")
+            a = analyse(df, ycol, xcols, gcol, source=reading.source, censored=_censored_of(reading), **choices)
+            a.reading = reading
+            if args.readings:  # issue 13: x read back from measured y (udfs/calibrate.py)
+                a.readings = _back_calculate(args, data, reading, a, choices["level"], prog)
+            drawer.submit(plot_data(a), files.staged_plots)
+            prog.step("writing the report workbook and drawing the plots")
+            write_report(a, files.staged_workbook)
+            drawer.result()
         rep, pngs = files.publish()
     _print_summary(a)
     if getattr(a, "readings", None) is not None:

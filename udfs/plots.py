@@ -5,21 +5,27 @@ words only, picklable); :func:`draw` draws them with matplotlib's object
 interface and the Agg canvas (no pyplot, no GUI backend to look for, about
 a third faster to import).
 
-Drawing in a helper process while the main process writes the workbook was
-tried and measured on this project's 2-core shared machine: no faster (the
-second core was busy with other work), so the plots are drawn in process.
+With two or more cores, ``unbend report`` draws in a second process
+(:class:`Drawer`): started before the main process imports pandas and scipy,
+it imports matplotlib while the data are read and fitted, then draws while the
+main process writes the workbook. If that process cannot start or fails, the
+plots are drawn in the main process, so the files are the same either way
+(``tests/test_plots_drawer.py`` compares them byte for byte).
 
 This module imports only numpy at the top and matplotlib inside :func:`draw`.
 """
 from __future__ import annotations
 
 import os
+import pickle
+import subprocess
+import sys
 
 import numpy as np
 
 from .outputs import atomic_save
 
-__all__ = ["PLOT_FILES", "plot_data", "draw"]
+__all__ = ["PLOT_FILES", "plot_data", "draw", "Drawer"]
 
 #: The plot files :func:`draw` writes, in its folder.
 PLOT_FILES = ("before_after.png", "residuals.png", "scan.png")
@@ -191,3 +197,131 @@ def draw(d: dict, folder) -> list:
     fig.subplots_adjust(left=0.2, right=0.99, bottom=0.2, top=0.93)
     save(fig, "scan.png")
     return paths
+
+
+def _cores() -> int:
+    try:
+        return len(os.sched_getaffinity(0))
+    except AttributeError:  # pragma: no cover - Windows and macOS
+        return os.cpu_count() or 1
+
+
+class Drawer:
+    """The report's plots drawn in a second process, in parallel with the workbook.
+
+    Start it first (the second process imports matplotlib at once), then
+    :meth:`submit` the :func:`plot_data` and a folder, write the workbook, and
+    call :meth:`result` for the paths of the PNGs. With one core, or when the
+    second process cannot start, fails or reports an error, the plots are drawn
+    in this process by :meth:`result` instead; ``drawn_in`` says which
+    (``"second process"`` or ``"this process"``). Use it as a context manager:
+    on leaving, a second process still running is stopped.
+    """
+
+    #: the second process: this Python, running :func:`_serve`
+    command = (sys.executable, "-c", "from unbend.udfs.plots import _serve; _serve()")
+
+    def __init__(self, parallel: bool | None = None):
+        self.proc = None
+        self.drawn_in = None
+        self._job = None
+        if parallel is None:
+            parallel = _cores() >= 2
+        if parallel:
+            try:
+                self.proc = subprocess.Popen(self.command, stdin=subprocess.PIPE, stdout=subprocess.PIPE)
+            except OSError:
+                self.proc = None
+
+    def submit(self, d: dict, folder) -> None:
+        """Hand the plot data and the folder to the second process (it draws at once)."""
+        self._job = (d, os.fspath(folder))
+        if self.proc is None:
+            return
+        try:
+            self.proc.stdin.write(pickle.dumps(self._job, protocol=pickle.HIGHEST_PROTOCOL))
+            self.proc.stdin.close()
+        except OSError:  # it has ended already: result() draws here
+            self._stop()
+
+    def result(self) -> list:
+        """The paths of the PNGs, once drawn (here, when the second process could not draw them)."""
+        if self._job is None:
+            raise RuntimeError("Drawer.result() before submit()")
+        if self.proc is not None:
+            try:
+                raw = self.proc.stdout.read()
+                self.proc.wait()
+                status, value = pickle.loads(raw)
+            except Exception:  # no answer, or a broken one: draw here
+                status, value = "failed", None
+            self._stop()
+            if status == "drawn":
+                self.drawn_in = "second process"
+                return value
+        self.drawn_in = "this process"
+        return draw(*self._job)
+
+    def _stop(self) -> None:
+        p, self.proc = self.proc, None
+        if p is None:
+            return
+        for f in (p.stdin, p.stdout):
+            try:
+                f.close()
+            except OSError:
+                pass
+        if p.poll() is None:
+            p.kill()
+        p.wait()
+
+    def __enter__(self):
+        return self
+
+    def __exit__(self, *exc):
+        self._stop()
+        return False
+
+
+def _warm_up() -> None:
+    """Load matplotlib, its fonts and the PNG writer by drawing a small figure nobody sees (done while the main
+    process still reads and fits, so the real figures are drawn warm)."""
+    import io
+
+    from matplotlib.backends.backend_agg import FigureCanvasAgg
+    from matplotlib.figure import Figure
+
+    fig = Figure(figsize=(2, 2))
+    FigureCanvasAgg(fig)
+    ax = fig.subplots(1, 2)[0]
+    ax.scatter([1.0, 2.0], [1.0, 2.0], s=4, alpha=0.5, linewidths=0)
+    ax.plot([1.0, 2.0], [1.0, 2.0])
+    ax.set_title("0.5")
+    ax.set_xlabel("x")
+    fig.savefig(io.BytesIO(), dpi=30, format="png", pil_kwargs={"compress_level": 1})
+
+
+def _serve() -> None:
+    """The second process: read the job while matplotlib loads, draw, answer with the paths or the error."""
+    import threading
+
+    out = sys.stdout.buffer
+    sys.stdout = sys.stderr  # anything a library prints goes to the user's stderr, not into the answer
+    box = {}
+
+    def take():
+        box["raw"] = sys.stdin.buffer.read()
+
+    reader = threading.Thread(target=take, daemon=True)
+    reader.start()
+    try:
+        _warm_up()
+        reader.join()
+        if not box.get("raw"):  # the main process stopped before handing a job over
+            return
+        d, folder = pickle.loads(box["raw"])
+        answer = ("drawn", draw(d, folder))
+    except BaseException as e:  # the main process draws instead, and meets the same problem there
+        answer = ("failed", f"{type(e).__name__}: {e}")
+    out.write(pickle.dumps(answer))
+    out.flush()
