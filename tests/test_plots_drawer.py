@@ -145,3 +145,17 @@ def test_report_draws_in_the_second_process_and_publishes_its_plots(tmp_path, mo
     assert sorted(os.listdir(tmp_path / "r_plots")) == sorted(plots.PLOT_FILES)
     for name in plots.PLOT_FILES:
         assert f"r_plots{os.sep}{name}" in out
+
+
+@pytest.mark.parametrize("exe, ok", [("/usr/bin/python3", True), (r"C:\\Python311\\python.exe", True),
+                                     (r"C:\\Python311\\pythonw.exe", True), ("/opt/venv/bin/python3.11", True),
+                                     (r"C:\\Program Files\\Office\\EXCEL.EXE", False), ("", False), (None, False)])
+def test_second_process_only_from_a_python_interpreter(exe, ok, monkeypatch):
+    """Inside a program that embeds Python, sys.executable names that program: never start it."""
+    assert plots._is_python(exe) is ok
+    monkeypatch.setattr(plots.sys, "executable", exe)
+    monkeypatch.setattr(plots, "_cores", lambda: 2)
+    monkeypatch.setattr(plots.subprocess, "Popen", lambda *a, **k: pytest.fail("started a process"))
+    if not ok:
+        with plots.Drawer() as drawer:
+            assert drawer.proc is None

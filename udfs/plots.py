@@ -16,6 +16,7 @@ This module imports only numpy at the top and matplotlib inside :func:`draw`.
 """
 from __future__ import annotations
 
+import ntpath  # splits at \ and / alike, for a Windows path on any system
 import os
 import pickle
 import subprocess
@@ -206,6 +207,11 @@ def _cores() -> int:
         return os.cpu_count() or 1
 
 
+def _is_python(path) -> bool:
+    """True for a Python interpreter's path (not a host program that embeds Python, nor a frozen application)."""
+    return bool(path) and not getattr(sys, "frozen", False) and ntpath.basename(path).lower().startswith("python")
+
+
 class Drawer:
     """The report's plots drawn in a second process, in parallel with the workbook.
 
@@ -226,7 +232,7 @@ class Drawer:
         self.drawn_in = None
         self._job = None
         if parallel is None:
-            parallel = _cores() >= 2
+            parallel = _cores() >= 2 and _is_python(sys.executable)
         if parallel:
             try:
                 self.proc = subprocess.Popen(self.command, stdin=subprocess.PIPE, stdout=subprocess.PIPE)
