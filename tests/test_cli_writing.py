@@ -541,3 +541,26 @@ def test_every_option_named_in_a_message_exists(zero_counts, negative_x, pinned,
         named.update(OPTION.findall(m))
     assert {"--y-start", "--x-start", "--x-power", "--overwrite", "--out", "--level"} <= named
     assert named <= opts, named - opts
+
+
+def test_a_reader_that_stops_reading_gets_one_line_not_a_file_error(tmp_path):
+    """`unbend report ... | head`: stdout's reader is gone before the summary is printed (its end of the pipe is
+    closed at once). The files are in place, stderr says what happened in one line, the exit status is 1."""
+    rng = np.random.default_rng(11)  # invented
+    x = rng.uniform(1.0, 50.0, 40)
+    data = tmp_path / "d.csv"
+    y = 3.0 * x ** 0.5 * rng.lognormal(0.0, 0.1, 40)
+    data.write_text("y,x\n" + "".join(f"{a!r},{b!r}\n" for a, b in zip(y.tolist(), x.tolist())))
+
+    r, w = os.pipe()
+    os.close(r)
+    try:
+        p = subprocess.run([sys.executable, "-m", "unbend", "report", str(data), "--y", "y", "--x", "x", "--quiet",
+                            "--out", str(tmp_path / "r.xlsx")], stdout=w, stderr=subprocess.PIPE, text=True,
+                           timeout=300)
+    finally:
+        os.close(w)
+    lines = [ln for ln in p.stderr.splitlines() if ln.strip()]
+    assert p.returncode == 1 and len(lines) == 1, p.stderr
+    assert lines[0].startswith("unbend: the printed summary was cut short") and "Traceback" not in p.stderr
+    assert (tmp_path / "r.xlsx").is_file() and sorted(os.listdir(tmp_path / "r_plots")) == PLOTS

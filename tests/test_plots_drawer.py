@@ -159,3 +159,4 @@ def test_second_process_only_from_a_python_interpreter(exe, ok, monkeypatch):
     if not ok:
         with plots.Drawer() as drawer:
             assert drawer.proc is None
+

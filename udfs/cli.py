@@ -354,10 +354,23 @@ def main(argv=None) -> int:
         return cmd_demo(args) if args.command == "demo" else cmd_report(args)
     except KeyboardInterrupt:
         return _fail("stopped.", 130)
+    except BrokenPipeError:  # `unbend report ... | head`: the reader stopped reading what we print
+        return _reader_gone()
     except MemoryError:
         return _fail("the data are too large for this machine's memory.", EXIT_UNEXPECTED)
     except Exception as e:  # never a traceback
         return _explain(e)
+
+
+def _reader_gone() -> int:
+    """Stdout's reader has closed it: say so on stderr, and keep Python from failing again when it flushes stdout."""
+    try:
+        devnull = os.open(os.devnull, os.O_WRONLY)
+        os.dup2(devnull, sys.stdout.fileno())
+    except (OSError, ValueError, AttributeError):  # stdout is not a file (inside another program)
+        pass
+    return _fail("the printed summary was cut short because the program reading it stopped reading; run again "
+                 "without the pipe to see all of it, with the files written at its end.", 1)
 
 
 def _explain(e: Exception) -> int:

@@ -195,7 +195,7 @@ def draw(d: dict, folder) -> list:
                     fontsize=9, fontweight="bold" if mark[i][j] == "best" else "normal")
     fig.colorbar(im, ax=ax, label="log-likelihood (higher is better)")
     ax.set_title("Scan of rungs: likelihood, and what the residual checks say")
-    fig.subplots_adjust(left=0.2, right=0.99, bottom=0.2, top=0.93)
+    fig.subplots_adjust(left=0.2, right=0.9, bottom=0.2, top=0.93)  # room for the colour bar's label
     save(fig, "scan.png")
     return paths
 
