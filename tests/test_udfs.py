@@ -501,6 +501,35 @@ def test_symmetry_matches_scipy_boxcox(cars_data):
     assert d["rows used"] == 50 and d["rows skipped"] == 0
 
 
+def test_symmetry_with_zeros_says_which_start_and_the_start_matches_scipy_boxcox(cars_data):
+    """Values at or below 0 (cars' stopping distances less 10 ft, an open dataset shifted): every y-alone cell
+    function names the start to give, UNBEND_SYMMETRY takes it, and its power is Box-Cox's on values + start."""
+    y, _ = cars_data
+    shifted = [v - 10.0 for v in y]  # smallest 2 - 10 = -8; 8 values at or below 0
+    k = sum(v <= 0 for v in shifted)
+    start = unbend.propose_start(np.array(shifted), 0.0)
+    assert start > 8.0
+    words = (f"needs every value above 0; {k} of 50 are not (smallest -8). Add a start of {start:g}: "
+             f"=UNBEND_SYMMETRY(values, {start:g}) adds it to every value first.")
+    for name in ("UNBEND_SYMMETRY", "UNBEND_POWER"):
+        out = call(name, shifted)
+        assert is_message(out) and words in out, out
+    row = check_table(call("UNBEND_SUGGEST", shifted))[1]
+    assert row[:6] == ["y", "", "", "", "", ""] and row[6] == 50
+    assert f"{k} of 50 are not" in row[8] and f"=UNBEND_SYMMETRY(y, {start:g}) adds {start:g} to every y" in row[8]
+    # the start the message names works, and a start too small is refused with the start that would do
+    d = label_values(check_table(call("UNBEND_SYMMETRY", shifted, start)))
+    # source: scipy.stats.boxcox_normmax(method="mle") on the values plus the start
+    assert d["estimate"] == pytest.approx(sst.boxcox_normmax(np.array(shifted) + start, method="mle"), abs=1e-4)
+    assert d["rows used"] == 50
+    again = call("UNBEND_SYMMETRY", shifted, 5)
+    assert is_message(again) and "above 0 after adding the start 5;" in again and f"values, {start:g})" in again
+    # a start of 10 gives back cars' own distances: the same power as without the shift
+    back = label_values(check_table(call("UNBEND_SYMMETRY", shifted, 10)))
+    assert back["estimate"] == pytest.approx(label_values(check_table(call("UNBEND_SYMMETRY", y)))["estimate"],
+                                             abs=1e-9)
+
+
 def test_scan_matches_engine(cars_data):
     y, x = cars_data
     out = check_table(call("UNBEND_SCAN", y, x))

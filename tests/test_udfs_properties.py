@@ -268,7 +268,7 @@ STRATEGIES = {
     "UNBEND_RESIDUALS": with_options(yx(), [("y_power", POWER), ("x_power", POWER), ("y_start", START),
                                             ("x_start", START)]),
     "UNBEND_SPREAD": values_and_groups().map(lambda vg: {"values": vg[0], "groups": vg[1]}),
-    "UNBEND_SYMMETRY": one_range().map(_values),
+    "UNBEND_SYMMETRY": with_options(one_range().map(_values), [("start", START)]),
     "UNBEND_APPLY": with_options(one_range().map(_values), [("power", POWER), ("start", START)]),
     "UNBEND_UNDO": with_options(one_range().map(_values), [("power", POWER), ("start", START)]),
     "UNBEND_FORMULA": with_options(yx(), [("y_power", POWER), ("x_power", POWER), ("x_cell", CELL),
@@ -356,7 +356,8 @@ for _name in ("UNBEND_FIT", "UNBEND_RESIDUALS", "UNBEND_EXPLAIN", "UNBEND_PREDIC
 _OPEN_INTERVAL = {"y": [15.772169249534112, 19.08889456428062, 46.941940719974774],
                   "x": [318.91929581379816, 137.7143033196798, 612.0950410005946]}
 EXAMPLES["UNBEND_SUGGEST"].insert(0, _OPEN_INTERVAL)
-EXAMPLES["UNBEND_SYMMETRY"] = [{"values": [1e308, 1e-308, 5e-324, 2.0, 3.0]}]
+EXAMPLES["UNBEND_SYMMETRY"] = [{"values": [1e308, 1e-308, 5e-324, 2.0, 3.0], "start": None},
+                               {"values": [-1e308, 0.0, 2.0, 3.0], "start": 1e308}]
 EXAMPLES["UNBEND_APPLY"] = [{"values": [1e308, -1e308, 0.0], "power": 2.0}, {"values": [1e-308], "power": -1.0}]
 EXAMPLES["UNBEND_UNDO"] = [{"values": [1e308, -1e308, 0.0], "power": 0.5}, {"values": [800.0], "power": 0.0}]
 EXAMPLES["UNBEND_SPREAD"] = [{"values": [1e308] * 3 + [1.0, 2.0, 3.0] * 2,

@@ -24,7 +24,7 @@ import numpy as np
 import xlwings as xw
 
 import unbend
-from unbend import UnbendError
+from unbend import DomainError, UnbendError
 from unbend.fitting import CAUTION
 from unbend.calibration import inverse_columns
 from unbend.predicting import prediction_columns
@@ -196,7 +196,7 @@ def UNBEND_POWER(y, x=None, which=None):
         if w == "x":
             raise UnbendError('which="x" needs an x range.')
         yv, _ = _y_only(y)
-        return cells.scalar(_cache.get_or_compute(("sym", yv), lambda: unbend.symmetry_power(yv)).rung)
+        return cells.scalar(_symmetry(yv).rung)
     yv, X, rd = _yx(y, x, True)
     c = _censored(rd)
     yp, xp = _cache.get_or_compute(("pair", yv, X, None, None, 0.0, 0.0, c),
@@ -230,8 +230,9 @@ def UNBEND_SUGGEST(y, x=None):
     """Table: suggested power for y (and for x) with its 95% interval, the rung to use and a note."""
     if x is None or (isinstance(x, str) and not x.strip()):
         yv, rd = _y_only(y)
-        s = _cache.get_or_compute(("sym", yv), lambda: unbend.symmetry_power(yv))
-        return cells.table(_SUGGEST_HEADER, [_suggest_row(s, rd)])
+        if np.any(yv[np.isfinite(yv)] <= 0):  # as with x given: a row that says why, not an error
+            return cells.table(_SUGGEST_HEADER, [_symmetry_not_estimated_row(yv, rd)])
+        return cells.table(_SUGGEST_HEADER, [_suggest_row(_symmetry(yv), rd)])
     yv, X, rd = _yx(y, x, True)
     c = _censored(rd)
     yp, xp = _cache.get_or_compute(("pair", yv, X, None, None, 0.0, 0.0, c),
@@ -389,12 +390,39 @@ def UNBEND_SPREAD(values, groups):
     return cells.table(["item", "value", "low 95%", "high 95%", "note"], rows)
 
 
-@cell_function(values="Range of values, one column; must be above 0 (give a start otherwise).")
-def UNBEND_SYMMETRY(values):
+@cell_function(values="Range of values, one column; every value plus the start must be above 0.",
+               start="Optional start added to every value before re-expressing, for zeros or negatives (default 0).")
+def UNBEND_SYMMETRY(values, start=None):
     """Table: the power that makes one column's distribution most symmetric (Box-Cox), its 95% interval and rung."""
     v, rd = _y_only(values)
-    s = _cache.get_or_compute(("sym", v), lambda: unbend.symmetry_power(v))
+    s = _symmetry(v, cells.optional_number(start, "start", 0.0))
     return _rows_table(rd.into_rows(s.rows()))
+
+
+def _symmetry(v, start=0.0):
+    """The Box-Cox power for one column (shared between calls on equal values); zeros or negatives refused in
+    the words of the cells: which start to give UNBEND_SYMMETRY."""
+    try:
+        return _cache.get_or_compute(("sym", v, start), lambda: unbend.symmetry_power(v, start=start))
+    except DomainError as e:
+        raise UnbendError(_symmetry_needs(v, start, e.proposed_start) + f" Add a start of {e.proposed_start:g}: "
+                          f"=UNBEND_SYMMETRY(values, {e.proposed_start:g}) adds it to every value first.") from None
+
+
+def _symmetry_needs(v, start, proposed) -> str:
+    v = v[np.isfinite(v)]
+    k = int(np.sum(v + start <= 0))
+    cur = f" after adding the start {start:g}" if start else ""
+    return (f"The power that makes the values most symmetric (Box-Cox) needs every value above 0{cur}; {k} of "
+            f"{v.size} {'is' if k == 1 else 'are'} not (smallest {float(v.min()):g}).")
+
+
+def _symmetry_not_estimated_row(v, rows):
+    """UNBEND_SUGGEST's row for y alone when a value is 0 or below."""
+    start = unbend.propose_start(v[np.isfinite(v)], 0.0)
+    note = (f"Not estimated. {_symmetry_needs(v, 0.0, start)} UNBEND_SYMMETRY takes a start: =UNBEND_SYMMETRY(y, "
+            f"{start:g}) adds {start:g} to every y first, and every rung can be tried.")
+    return ["y", "", "", "", "", "", rows.n_used, rows.n_skipped, note] + _reading_cells(rows)
 
 
 def _column_through(engine_fn, values, power, start, missing_power):
