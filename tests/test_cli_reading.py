@@ -185,3 +185,32 @@ def test_skipped_examples_name_row_column_and_value(tmp_path):
     few.write_text("x,y\n1,1.2\n2,n/a\n3,x\n", encoding="utf-8")
     line = one_line(*run(["report", few, "--y", "y", "--x", "x", "--quiet", "--out", tmp_path / "f.xlsx"]))
     assert "(such as row 3, y: 'n/a')" in line, line
+
+
+def test_report_reads_parquet_like_the_same_csv(tmp_path):
+    """`unbend report DATA.parquet`: the same rows, skips and line as the same data written as CSV; a null is
+    skipped as blank, with its reason. Invented data (y = 4 * x^0.5 * lognormal noise, seeded)."""
+    pd = pytest.importorskip("pandas")
+    pytest.importorskip("pyarrow")
+
+    rng = np.random.default_rng(31)  # invented
+    x = np.round(rng.uniform(1.0, 80.0, 50), 3)
+    y = np.round(4.0 * x ** 0.5 * rng.lognormal(0.0, 0.1, 50), 4)
+    frame = pd.DataFrame({"yield": y, "dose": x})
+    frame.loc[7, "yield"] = None
+    frame.to_parquet(tmp_path / "d.parquet", engine="pyarrow", index=False)
+    frame.to_csv(tmp_path / "d.csv", index=False)
+    keep = np.arange(50) != 7
+    slope, icept = np.polyfit(np.log(x[keep]), np.log(y[keep]), 1)  # source: numpy least squares, clean rows
+    for name in ("d.parquet", "d.csv"):
+        code, out, err = run(["report", tmp_path / name, "--y", "yield", "--x", "dose", "--quiet",
+                              "--y-power", "0", "--x-power", "0", "--out", tmp_path / f"{name}.xlsx"])
+        assert code == 0, err
+        text = " ".join(out.split())
+        assert "Rows used: 49; rows skipped: 1" in text and "(row 9, yield: blank)" in text, text
+        assert ("values read from text" in text) is (name == "d.csv")  # Parquet numbers are numbers
+        wb = openpyxl.load_workbook(tmp_path / f"{name}.xlsx", read_only=True)
+        fit = {r[0]: r[1] for r in wb["Fit"].iter_rows(values_only=True) if r and isinstance(r[0], str)}
+        wb.close()
+        assert fit["slope dose"] == pytest.approx(slope, rel=1e-9), fit
+        assert fit["intercept"] == pytest.approx(icept, rel=1e-9)

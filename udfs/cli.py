@@ -278,7 +278,8 @@ def build_parser() -> argparse.ArgumentParser:
     d.add_argument("--quiet", action="store_true", help="no progress messages")
     r = sub.add_parser("report", help="write a report workbook and plots for y against x from a .xlsx or .csv file")
     # reading the data
-    r.add_argument("data", help="the data file (.xlsx, .xlsm, .xls, .xlsb, .ods, .csv, .tsv or .txt) with a header row")
+    r.add_argument("data", help="the data file (.xlsx, .xlsm, .xls, .xlsb, .ods, .csv, .tsv, .txt or .parquet) with a "
+                   "header row")
     r.add_argument("--y", required=True, help="the y column: header text or column letter (such as E)")
     r.add_argument("--x", required=True, action="append",
                    help="an x column (header text or letter); repeat for more than one")
