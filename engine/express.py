@@ -195,7 +195,7 @@ class Reexpression:
         what = "value" if name == "values" else f"{name} value"
         raise DomainError(
             f"{rung_label(self.power, log10=self.log10)} needs every {what} {need}{cur}; "
-            f"{nbad} of {v.size} are not (smallest {lo:g}). Add a start of {start:g} "
+            f"{nbad} of {v.size} {'is' if nbad == 1 else 'are'} not (smallest {lo:g}). Add a start of {start:g} "
             f"(start={start:g}), choose power 1, or use the Yeo-Johnson family for mixed signs.",
             proposed_start=start,
         )

@@ -20,7 +20,7 @@ from . import _dist as stats
 
 from . import _blocks as B
 from ._likelihood import SEARCH_LIMIT
-from ._validation import UnbendError, as_matrix, as_vector, check_level, check_number, check_power
+from ._validation import DomainError, UnbendError, as_matrix, as_vector, check_level, check_number, check_power
 from .diagnostics import ALPHA, PATTERN_ALPHA, verdict
 from .express import LADDER, Reexpression, rung_label
 from .power import PowerSuggestion, _suggestion
@@ -638,7 +638,13 @@ def choose_common(src, y_power, x_power, level) -> CommonPower:
     profile likelihood suggests, alternating y given x and x given y until neither changes."""
     for what, given in (("y", y_power), ("x", x_power)):
         if given is None:  # the profile over this power needs values above 0 (after the start)
-            src.check(Reexpression(0.0, src.ys if what == "y" else src.xs), what)
+            try:
+                src.check(Reexpression(0.0, src.ys if what == "y" else src.xs), what)
+            except DomainError as e:  # said as what it is: the power cannot be chosen, not "log" refused
+                head = str(e).split(" Add a start")[0].replace("log needs", f"choosing the common power for {what} "
+                                                               "needs", 1)
+                raise DomainError(f"{head} Add a start of {e.proposed_start:g} ({what}_start={e.proposed_start:g}), "
+                                  f"or give {what}_power.", e.proposed_start) from None
     sy = sx = None
     note = ""
     if y_power is not None and x_power is not None:

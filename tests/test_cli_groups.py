@@ -402,6 +402,23 @@ def test_zeros_ask_for_a_start_and_the_level_reaches_every_header(tmp_path):
     line = one_line(*run(["groups", path, "--y", "y", "--x", "x", "--by", "site", "--out", tmp_path / "a.xlsx"]))
     assert "--y-start (such as 0.5)" in line and "smallest 0" in line
     assert not (tmp_path / "a.xlsx").exists()
+    # the start named is the one `unbend report` names for the same column (unbend.propose_start, 0.025 here:
+    # half the smallest gap, 0.05; as the shortest decimal that still works); half the step above the lowest value
+    # would have said 0.1
+    path2 = tmp_path / "fine.csv"
+    path2.write_text("site,x,y\nA,1,0\nA,2,0.2\nA,3,0.5\nA,4,0.55\nB,1,0.3\nB,2,0.6\nB,3,0.8\nB,5,1.2\n",
+                     encoding="utf-8")
+    import unbend
+    assert unbend.propose_start([0, 0.2, 0.5, 0.55, 0.3, 0.6, 0.8, 1.2]) == pytest.approx(0.025)
+    code, out, err = run(["report", path2, "--y", "y", "--x", "x", "--quiet", "--out", tmp_path / "r.xlsx"])
+    assert code == 0, err
+    named = re.search(r"add a start: --y-start ([0-9.]+)", flat(out)).group(1)
+    assert 0 < float(named) <= 0.025
+    line = one_line(*run(["groups", path2, "--y", "y", "--x", "x", "--by", "site", "--out", tmp_path / "c.xlsx"]))
+    assert f"--y-start (such as {named})" in line, line
+    code, out, err = run(["groups", path2, "--y", "y", "--x", "x", "--by", "site", "--out", tmp_path / "c.xlsx",
+                          "--y-start", named, "--quiet"])
+    assert code == 0, err
     code, out, err = run(["groups", path, "--y", "y", "--x", "x", "--by", "site", "--out", tmp_path / "b.xlsx",
                           "--y-start", "0.5", "--level", "90", "--quiet"])
     assert code == 0, err

@@ -329,8 +329,19 @@ def test_zeros_need_a_start_unless_the_power_allows_them(dnase):
     y, x, g = dnase
     y0 = y.copy()
     y0[3] = 0.0
-    with pytest.raises(unbend.DomainError, match="start"):
+    with pytest.raises(unbend.DomainError, match="start") as e:
         unbend.fit_groups(y0, x, g)
+    s = e.value.proposed_start
+    # said as what it is: the power cannot be chosen (no "log" was asked for), with the argument to give
+    assert str(e.value).startswith("choosing the common power for y needs every y value above 0; 1 of 176 is not "
+                                   "(smallest 0).")
+    assert str(e.value).endswith(f"Add a start of {s:g} (y_start={s:g}), or give y_power.")
+    assert unbend.fit_groups(y0, x, g, y_start=s).n == 176  # the start it names works
+    # the cell function says it in the cells' words
+    from unbend.udfs import functions as UF
+    cell = UF.UNBEND_GROUPS([[v] for v in y0], [[v] for v in x], [[v] for v in g])
+    assert cell.startswith("unbend: choosing the common power for y needs every y value above 0") and \
+        cell.endswith(f"Add a start of {s:g} (the y_start argument), or give y_power 1 (raw)."), cell
     gf = unbend.fit_groups(y0, x, g, y_power=1, x_power=0)
     assert gf.table["own_y_power"].isna().all()  # a Box-Cox profile of y needs every y above 0
     assert gf.table["slope"].notna().all()

@@ -458,6 +458,19 @@ def test_zeros_in_y_for_a_log_propose_a_start(cars_data):
         start = float(m.group(1))
         # the distances are whole feet, so the common-practice start for counts with zeros is 0.5
         assert start == 0.5, out
+        # in the cells' words: the argument that takes the start, no option the cell functions lack
+        assert "(start=" not in out and "Yeo-Johnson" not in out, out
+        if name != "UNBEND_SYMMETRY":
+            arg = "start" if name == "UNBEND_APPLY" else "y_start"
+            power = "power" if name == "UNBEND_APPLY" else "y_power"
+            assert out.endswith(f"Add a start of 0.5 (the {arg} argument), or give {power} 1 (raw)."), out
+            assert "1 of 50 is not (smallest 0)" in out, out
+    # zeros in x: the x_start argument
+    x0 = list(x)
+    x0[3] = 0.0
+    out = call("UNBEND_FIT", y, x0, 1, 0)
+    assert is_message(out) and "every x value above 0; 1 of 50 is not (smallest 0)" in out, out
+    assert out.endswith("(the x_start argument), or give x_power 1 (raw)."), out
     # and the start proposed works
     fixed = call("UNBEND_FIT", y0, x, 0, 1, 0.5)
     assert label_values(fixed)["y start"] == 0.5

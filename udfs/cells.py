@@ -39,7 +39,7 @@ from collections import OrderedDict
 
 import numpy as np
 
-from unbend import UnbendError
+from unbend import DomainError, UnbendError
 
 __all__ = [
     "CellError",
@@ -731,10 +731,23 @@ def error_text(exc: BaseException) -> str:
     if isinstance(exc, (UnbendError, CellError)):
         if msg.startswith("unbend:"):
             msg = msg[len("unbend:"):].lstrip()
+        if isinstance(exc, DomainError):
+            msg = _start_in_cell_words(msg, exc.proposed_start)
         return _one_line("unbend: " + (msg or "the input cannot be used."))
     kind = type(exc).__name__
     detail = f"{kind}: {_one_line(msg, 120)}" if msg else kind
     return _one_line(f"unbend: unexpected problem ({detail}); please report it")
+
+
+def _start_in_cell_words(msg: str, start: float) -> str:
+    """The engine's advice ("Add a start of 0.5 (start=0.5), choose power 1, or use the Yeo-Johnson family ...")
+    in the cells' words: the argument that takes the start (y_start, x_start or start), and no option the cell
+    functions do not have."""
+    head, sep, _ = msg.partition(" Add a start of ")
+    if not sep:
+        return msg
+    what = "y_" if " y value" in head else "x_" if " x value" in head else ""
+    return f"{head} Add a start of {start:g} (the {what}start argument), or give {what}power 1 (raw)."
 
 
 def safe(fn):

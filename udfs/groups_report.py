@@ -25,6 +25,7 @@ from unbend.express import Reexpression, rung_label
 from unbend.fitting import CAUTION
 
 from .outputs import atomic_save
+from .report import _nice_start  # the start the report proposes, so both commands propose the same
 from .wording import group_headers
 from .xlsx import P_FORMAT, Book, Style
 
@@ -81,21 +82,12 @@ def analyse_groups(reading, *, y_power=None, x_power=None, y_start=0.0, x_start=
         if power is None and not low > 0:  # choosing a power needs every value above 0 (Box-Cox, Box-Tidwell)
             raise unbend.UnbendError(
                 f"{name} has values at or below 0 after the start (smallest {low:g}), so its power cannot be chosen "
-                f"from the data. Add --{opt}-start (such as {_start_hint(v, start)}) or pin --{opt}-power 1 (raw).")
+                f"from the data. Add --{opt}-start (such as {_nice_start(v, start):g}) or pin --{opt}-power 1 (raw).")
     gf = unbend.fit_groups(y, x, g, y_power=y_power, x_power=x_power, y_start=y_start, x_start=x_start,
                            level=level)
     return GroupsAnalysis(fit=gf, y_name=reading.y_label, x_name=reading.x_labels[0], by_name=reading.groups_name,
                           source=reading.source, y=y, x=x, groups=g, row_numbers=reading.row_numbers,
                           reading=reading, invented=invented)
-
-
-def _start_hint(v, start) -> str:
-    """A start that lifts every value above 0: half the smallest positive step, added to the lowest value."""
-    low = float(np.min(v))
-    pos = np.unique(v[v > low])
-    step = float(pos[0] - low) if pos.size else 1.0
-    s = -low + step / 2 if low + start <= 0 else start
-    return f"{float(f'{s:.2g}'):g}"
 
 
 # ----------------------------------------------------------------------------- words
