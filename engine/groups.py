@@ -201,39 +201,45 @@ class GroupFit:
         shown = ", ".join(repr(v) for v in labels[:5]) + (" ..." if len(labels) > 5 else "")
         raise UnbendError(f"there is no group {group!r}; the groups are {shown}.")
 
-    def explain(self) -> str:
+    def explain(self, noun: str = "group") -> str:
         """A few plain sentences: the powers every group uses, whether the slopes differ, which groups stand
-        out or were left out, and cautions."""
-        def how(power, pinned):
-            return f"power {power:g} ({rung_label(power)}, {'as given' if pinned else 'chosen from all groups together'})"
+        out or were left out, and cautions. ``noun`` names a group in the sentences (such as "series",
+        "station" or "machine"; its plural adds an s unless it ends in s)."""
+        many = noun if noun.endswith("s") else noun + "s"
 
-        parts = [f"Every group's line uses y at {how(self.y_power, self.common.y_pinned)} and x at "
+        def count(k, verb):  # "1 station wants", "2 stations want", "1 series wants", "2 series want"
+            return f"{k} {noun if k == 1 else many} {verb + 's' if k == 1 else verb}"
+
+        def how(power, pinned):
+            return f"power {power:g} ({rung_label(power)}, {'as given' if pinned else f'chosen from all {many} together'})"
+
+        parts = [f"The line of every {noun} uses y at {how(self.y_power, self.common.y_pinned)} and x at "
                  f"{how(self.x_power, self.common.x_pinned)}."]
         p = self.equal_slopes_p
         if not np.isfinite(p):
-            parts.append("The slopes cannot be compared (fewer than 2 groups with a line, or no residual spread).")
+            parts.append(f"The slopes cannot be compared (fewer than 2 {many} with a line, or no residual spread).")
         elif p < 0.05:
-            parts.append(f"The slopes differ between groups (equal slopes F test {_p(p)}): compare groups by their "
+            parts.append(f"The slopes differ between {many} (equal slopes F test {_p(p)}): compare {many} by their "
                          "own slopes, not by one shared slope.")
         else:
-            parts.append(f"No clear difference between the groups' slopes (equal slopes F test {_p(p)}).")
+            parts.append(f"No clear difference between the slopes of the {many} (equal slopes F test {_p(p)}).")
         t = self.table
         chance = (1.0 - self.level) * self.n_groups_used
         for what in ("y", "x"):
             k = int(t[f"own_{what}_differs"].sum())
             if k:
-                parts.append(f"{k} group{'s' if k != 1 else ''} want{'' if k != 1 else 's'} another {what} power "
-                             f"(their own interval leaves out the common one; about {chance:.1f} would by chance "
-                             f"at the {self.level * 100:g}% level).")
+                parts.append(f"{count(k, 'want')} another {what} power (their own interval leaves out the common one; about "
+                             f"{chance:.1f} would by chance at the {self.level * 100:g}% level).")
         bad = int(sum(1 for _ in self._failing()))
         if bad:
-            parts.append(f"{bad} group{'s' if bad != 1 else ''} fail{'' if bad != 1 else 's'} a residual check "
+            parts.append(f"{count(bad, 'fail')} a residual check "
                          "(curvature, pattern or spread); see each verdict.")
         left = self.n_groups - self.n_groups_used
         if left:
-            parts.append(f"{left} group{'s' if left != 1 else ''} left out (too few rows, or x or y that does not "
+            parts.append(f"{left} {noun if left == 1 else many} left out (too few rows, or x or y that does not "
                          "vary).")
-        parts.append("Check each group's residuals; predictions outside a group's x range are extrapolation.")
+        parts.append(f"Check the residuals of each {noun}; predictions outside the x range of their {noun} are "
+                     "extrapolation.")
         return " ".join(parts)
 
     def _failing(self):

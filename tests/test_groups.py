@@ -421,11 +421,28 @@ def test_explain_says_what_the_fit_found(dnase):
     assert f"y at power {gf.y_power:g} (log, chosen from all groups together)" in text
     assert gf.equal_slopes_p < 0.001 and "The slopes differ between groups (equal slopes F test p < 0.001)" in text
     k = int(gf.table["own_y_differs"].sum())
-    assert f"{k} groups want another y power" in text and f"about {0.05 * 11:.1f} would by chance" in text
+    assert k > 1 and f"{k} groups want another y power" in text and f"about {0.05 * 11:.1f} would by chance" in text
     bad = int(((gf.table["curvature_p"] < 0.05) | (gf.table["pattern_p"] < 0.01) | (gf.table["spread_p"] < 0.05)).sum())
-    assert f"{bad} groups fail a residual check" in text
+    assert bad > 1 and f"{bad} groups fail a residual check" in text
     pinned = unbend.fit_groups(y, x, g, y_power=0.5, x_power=0)
     assert "y at power 0.5 (square root, as given) and x at power 0 (log, as given)" in pinned.explain()
+    # in the caller's word for a group, with its plural and the verb agreeing; never "group" then
+    for noun, many in (("series", "series"), ("run", "runs")):
+        said = gf.explain(noun)
+        assert "group" not in said, said
+        assert f"The line of every {noun} uses y at power {gf.y_power:g} (log, chosen from all {many} together)" in said
+        assert f"{k} {many} want another y power" in said and f"{bad} {many} fail a residual check" in said
+        assert f"Check the residuals of each {noun}; predictions outside the x range of their {noun}" in said
+    # the singular: invented series, three straight on log-log and one (d) that bends there (known truth)
+    rng = np.random.default_rng(1)
+    g4 = np.repeat(["a", "b", "c", "d"], 40)
+    x4 = np.tile(np.linspace(1.0, 50.0, 40), 4)
+    y4 = 3.0 * x4 ** 0.7 * rng.lognormal(0.0, 0.05, 160)
+    y4[g4 == "d"] = 5.0 * np.exp(0.02 * x4[g4 == "d"]) * rng.lognormal(0.0, 0.05, 40)
+    one = unbend.fit_groups(y4, x4, g4, y_power=0, x_power=0)
+    assert list(one._failing()) == ["d"] and int(one.table["own_y_differs"].sum()) == 1
+    said = one.explain("series")
+    assert "1 series fails a residual check" in said and "1 series wants another y power" in said, said
 
 
 def test_demo_network_has_one_station_that_bends_differently():

@@ -148,8 +148,9 @@ def summary_lines(a: GroupsAnalysis) -> list:
     out.append(power_sentence("y", a.y_name, c.y_power, c.y_pinned, c.y, gf.level))
     out.append(power_sentence("x", a.x_name, c.x_power, c.x_pinned, c.x, gf.level))
     if c.note:
-        out.append(c.note[:1].upper() + c.note[1:] + ("" if c.note.endswith(".") else "."))
-    out.append(gf.explain())
+        note = c.note.replace(" whole groups)", " whole series)")  # the engine's word for a series is "group"
+        out.append(note[:1].upper() + note[1:] + ("" if note.endswith(".") else "."))
+    out.append(gf.explain("series"))
     a_, b_ = gf.equal_slopes_df
     if np.isfinite(gf.equal_slopes_p):
         out.append(f"Equal slopes: F = {gf.equal_slopes_f:.4g} on {a_} and {b_} degrees of freedom, p = "
