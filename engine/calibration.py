@@ -337,7 +337,9 @@ def _inverse_columns(fit, new_y, level, replicates, name):
     empty = usable & ((hi < dlo) | ((lo >= dhi) if dhi_open else (lo > dhi)))
     low_edge = usable & ~empty & (lo < dlo)                  # cut at the smallest x the power allows
     high_cut = (hi >= dhi) if dhi_open else (hi > dhi)       # past the largest re-expressed x (x without end)
-    low = np.where(np.maximum(lo, dlo) == -np.inf, -np.inf, inv(np.maximum(lo, dlo)))
+    # an end at x' = -inf is x's own edge where the x re-expression has one (log or a negative power:
+    # x = -start), and -inf only where x itself runs without end (raw, odd powers)
+    low = inv(np.maximum(lo, dlo))
     high = np.where(high_cut | (hi == np.inf), np.inf, inv(hi))
     low[~usable | empty] = np.nan
     high[~usable | empty] = np.nan

@@ -586,3 +586,24 @@ def test_fieller_never_warns(reading, a, b, s, sxx, n, m):
     closed = (e.g < 1) & np.isfinite(e.low)
     assert np.all(e.low[closed] <= e.high[closed])
     no_leak(leak, "fieller")
+
+
+@pytest.mark.parametrize("px", [0.0, -1.0])
+def test_an_open_set_runs_down_to_the_edge_the_x_power_gives(px):
+    """Weak slope, x on log or reciprocal with a start of 0.5: x + 0.5 must stay above 0, so the set of x that
+    fits a reading runs down to x = -0.5 (x' without end below), not to minus infinity. Checked on statsmodels'
+    prediction band: the reading lies inside the band at an x a hair above -0.5."""
+    rng = np.random.default_rng(212)  # invented: hardly any trend
+    x = np.linspace(1.0, 10.0, 10)
+    xre = np.log(x + 0.5) if px == 0 else -1.0 / (x + 0.5)
+    y = 5.0 + 0.3 * xre + rng.normal(0, 1.0, x.size)
+    f = unbend.fit(y, x, y_power=1, x_power=px, x_start=0.5)
+    assert abs(f.tvalues[1]) < stats.t.ppf(0.975, f.df_resid)  # the premise: no closed interval
+    r = f.inverse([f.coef[0] + f.coef[1] * float(np.mean(xre))])  # a reading at the standards' mean
+    assert r["low"].iloc[0] == -0.5 and np.isfinite(r["x"].iloc[0])
+    assert "no closed interval" in r["note"].iloc[0]
+    # source: statsmodels OLS get_prediction, the 95% band for one new reading at x = -0.5 + 1e-9
+    model = sm.OLS(y, sm.add_constant(xre)).fit()
+    near = np.log(1e-9) if px == 0 else -1.0 / 1e-9
+    lo, hi = model.get_prediction(np.array([[1.0, near]])).conf_int(obs=True, alpha=0.05)[0]
+    assert lo <= r["y"].iloc[0] <= hi

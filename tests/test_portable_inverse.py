@@ -76,11 +76,20 @@ def _case(name):
         x = np.linspace(1.0, 10.0, 10)
         y = 5.0 + 0.02 * x + rng.normal(0, 1.0, x.size)
         return y, x, dict(y_power=1, x_power=1), [(5.0, 1), (7.0, 2)]
+    if name.startswith("weak_"):  # invented, hardly any trend; the x power cuts the open set of x
+        px, seed = {"weak_sqrt_x": (0.5, 211), "weak_log_x": (0.0, 212), "weak_recip_x": (-1.0, 213)}[name]
+        rng = np.random.default_rng(seed)
+        x = np.linspace(1.0, 10.0, 10)
+        xp = np.log(x) if px == 0 else np.sign(px) * x ** px
+        y = 5.0 + 0.3 * xp + rng.normal(0, 1.0, x.size)
+        reads = {"weak_sqrt_x": [(-4.0, 1), (5.0, 1), (9.5, 1)], "weak_log_x": [(5.0, 1), (9.5, 2)],
+                 "weak_recip_x": [(2.0, 1), (5.0, 1), (9.5, 1)]}[name]
+        return y, x, dict(y_power=1, x_power=px), reads
     raise KeyError(name)
 
 
 CASES = ["log_log_detector", "raw_raw", "sqrt_y_raw_x", "raw_y_sqrt_x", "recip_y_start_x", "raw_y_recip_x",
-         "sqrt_y_start", "weak_slope"]
+         "sqrt_y_start", "weak_slope", "weak_sqrt_x", "weak_log_x", "weak_recip_x"]
 
 
 def _reading_rows(ws):
@@ -178,6 +187,16 @@ def test_cases_cover_what_they_claim(lo):
     assert (weak["low"] == INV_NOT_BOUNDED).all() and (weak["high"] == INV_NOT_BOUNDED).all()
     assert weak["note"].str.contains("not significant at the 95% level").all()
     assert all(isinstance(v, float) for v in weak["x"])  # the estimate itself still exists
+    # open sets cut by the x power: what is left keeps one end, as the engine says (test_block_matches_the_engine)
+    sq = rows("weak_sqrt_x")  # square root of x: x' >= 0
+    assert sq.iloc[0]["low"] > 100 and sq.iloc[0]["high"] == INV_NOT_BOUNDED  # only x above a value fits -4
+    assert sq.iloc[1]["low"] == 0 and sq.iloc[1]["high"] == INV_NOT_BOUNDED  # every x the root allows
+    assert 0 < sq.iloc[2]["low"] < sq.iloc[2]["x"] and isinstance(sq.iloc[2]["low_re"], float)
+    lg = rows("weak_log_x")  # log x: every x above 0
+    assert (lg["low"] == 0).all() and (lg["high"] == INV_NOT_BOUNDED).all()
+    rc = rows("weak_recip_x")  # reciprocal of x: x' < 0; a reading above the plateau keeps an upper end only
+    assert rc.iloc[1]["high"] == INV_NOT_BOUNDED and isinstance(rc.iloc[2]["high"], float)
+    assert (rc["low"] == 0).all() and rc.iloc[2]["x"] == "none"
 
 
 def test_written_readings_and_typing_mistakes(lo):

@@ -408,6 +408,21 @@ def _inverse_formulas(r: int, first: int, last: int) -> dict:
     below = f"AND({floor0},{xr}<0)"
     above = f"AND({ceil0},{xr}>=0)"
     half = f"{t}*{s}/ABS({b})*SQRT(({xr}-{xm})^2/{sxx}+(1-{g})*(1/{mm}+1/{n}))"
+    # g >= 1: every x' but (when the discriminant is not negative) the stretch between the two roots; where the x
+    # power cuts one of the two pieces off, what is left has one end (as the engine: unbend.calibration)
+    disc = f"(({xr}-{xm})^2/{sxx}+(1-{g})*(1/{mm}+1/{n}))>=0"
+    r1 = f"{xm}+(({xr}-{xm})-{half})/(1-{g})"
+    r2 = f"{xm}+(({xr}-{xm})+{half})/(1-{g})"
+    one_piece = f"AND(MIN({r1},{r2})<0,MAX({r1},{r2})>=0)"
+    rises = f"IF({disc},IF(AND({floor0},{one_piece}),MAX({r1},{r2}),\"{INV_NOT_BOUNDED}\"),\"{INV_NOT_BOUNDED}\")"
+    falls = f"IF({disc},IF(AND({ceil0},{one_piece}),MIN({r1},{r2}),\"{INV_NOT_BOUNDED}\"),\"{INV_NOT_BOUNDED}\")"
+    # the low end of an open set in x: x's own edge (-start) where x' = -inf or 0 is one (log, roots, even and
+    # negative powers), none where x runs without end (raw and odd powers)
+    x_edge = f"IF(OR({xp}=1,AND({xp}>0,{odd})),\"{INV_NOT_BOUNDED}\",-{xs})"
+    open_low = (f"IF(AND({disc},{floor0}),IF({one_piece},{_invert(f'MAX({r1},{r2})', xp, xs)},{x_edge}),"
+                f"{x_edge})")
+    open_high = (f"IF(AND({disc},{ceil0}),IF({one_piece},{_invert(f'MIN({r1},{r2})', xp, xs)},"
+                 f"\"{INV_NOT_BOUNDED}\"),\"{INV_NOT_BOUNDED}\")")
     level = f"ROUND({C['level']}*100,4)"
     notes = [
         (f'{V["outside"]}="yes"', "\"outside the calibration standards' x range: extrapolation\""),
@@ -430,12 +445,12 @@ def _inverse_formulas(r: int, first: int, last: int) -> dict:
                        f'IFERROR({_reexpress(rd + "+" + ys, yp)},"cannot re-express")))'),
         "g": f'=IF(ISNUMBER({z}),IFERROR(({t}*{s}/{b})^2/{sxx},""),"")',
         "x_re": f'=IF(AND(ISNUMBER({z}),ISNUMBER({g}),{m_ok}),{xm}+({z}-{a}-{b}*{xm})/{b},"")',
-        "low_re": (f'=IF({live},IF({closed},{xm}+(({xr}-{xm})-{half})/(1-{g}),"{INV_NOT_BOUNDED}"),"")'),
-        "high_re": (f'=IF({live},IF({closed},{xm}+(({xr}-{xm})+{half})/(1-{g}),"{INV_NOT_BOUNDED}"),"")'),
+        "low_re": (f'=IF({live},IF({closed},{xm}+(({xr}-{xm})-{half})/(1-{g}),{rises}),"")'),
+        "high_re": (f'=IF({live},IF({closed},{xm}+(({xr}-{xm})+{half})/(1-{g}),{falls}),"")'),
         "x": f'=IF({live},IF(OR({below},{above}),"none",{_invert(xr, xp, xs)}),"")',
-        "low": (f'=IF({live},IF(NOT({closed}),"{INV_NOT_BOUNDED}",IF({empty},"none",'
+        "low": (f'=IF({live},IF(NOT({closed}),{open_low},IF({empty},"none",'
                 f'{_invert(klo, xp, xs)})),"")'),
-        "high": (f'=IF({live},IF(NOT({closed}),"{INV_NOT_BOUNDED}",IF({empty},"none",'
+        "high": (f'=IF({live},IF(NOT({closed}),{open_high},IF({empty},"none",'
                  f'IF(AND({ceil0},{khi}>=0),"no upper end",{_invert(khi, xp, xs)}))),"")'),
         "outside": f'=IF({live},IF(OR({xr}<MIN({xre}),{xr}>MAX({xre})),"yes","no"),"")',
         "note": (f'=IF({rd}="","",IF(NOT(ISNUMBER({rd})),"the reading is not a number",'
@@ -797,7 +812,8 @@ def _inverse_block(sh, workbook, header: int, rv, k: int, first: int, last: int,
           "low / high: the x values whose interval for the mean of m new readings contains the reading "
           "(Fieller's interval), found on the re-expressed scale and taken back end by end, so it is lopsided. "
           f"'{INV_NOT_BOUNDED}': the slope is not clearly different from 0 at this level, so no closed interval "
-          "exists. For m > 1 type the readings' average; the add-in (UNBEND_INVERSE) averages them on the "
+          "exists; where the x power gives x an edge (x = minus the start, for log, roots, squares and negative "
+          "powers) or cuts one side off, the end that is left is shown as a number. For m > 1 type the readings' average; the add-in (UNBEND_INVERSE) averages them on the "
           "re-expressed scale, which differs slightly when y is re-expressed. Readings outside the standards are "
           "extrapolation.", style=_S_NOTE)
     fmt = {"reading": fy, "replicates": "0", "x": fx, "low": fx, "high": fx, "reading_re": fyre, "g": "0.000000",
