@@ -199,6 +199,21 @@ def _t_quantile(level: float, df: int) -> float:
     return float(stats.t.ppf(0.5 + level / 2, df))
 
 
+#: The note for a median below 0 from a line whose y were all 0 or above.
+NEGATIVE_MEDIAN = ("the median is below 0, though no y observed is: the line crosses 0 here, which a line on the log "
+                   "or a root of y cannot do; this is no usable value")
+
+
+def _lowest_y(fit) -> float:
+    """The smallest y the line was fitted to (a limit for a value below one), or NaN when the fit does not say."""
+    res = getattr(fit, "residuals", None)
+    if res is None or "y" not in res:
+        return np.nan
+    y = res["y"].to_numpy(dtype=float)
+    y = y[np.isfinite(y)]
+    return float(y.min()) if y.size else np.nan
+
+
 def prediction_columns(fit, new_x, level: float = 0.95) -> dict:
     """The columns of :func:`predict` as a dict of arrays, without building a DataFrame (for speed)."""
     with np.errstate(all="ignore"):  # extreme new x give inf or blank cells with a note, never a warning
@@ -245,6 +260,8 @@ def _prediction_columns(fit, new_x, level):
     notes = []
     # flags worked out for all rows at once; the loop below only reads plain booleans
     x_ok, med_ok, hi_ok = np.isfinite(X).all(axis=1).tolist(), np.isfinite(median).tolist(), np.isfinite(hi).tolist()
+    with np.errstate(invalid="ignore"):
+        negative = (median < 0).tolist() if (median < 0).any() and _lowest_y(fit) >= 0 else [False] * m
     for i, (row_ok, out) in enumerate(zip(ok.tolist(), outside.tolist())):
         if not x_ok[i]:
             notes.append("x is not a number")
@@ -259,6 +276,8 @@ def _prediction_columns(fit, new_x, level):
             parts.append("no finite value: the line is past the end this y power can reach")
         elif not hi_ok[i]:
             parts.append("the interval has no upper end at this y power")
+        if negative[i]:
+            parts.append(NEGATIVE_MEDIAN)
         if trust[i]:
             parts.append(trust[i])
         if fit.n < FEW_ROWS:

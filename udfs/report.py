@@ -325,6 +325,7 @@ def summary_lines(a: Analysis) -> list:
                    f"{_fmt(s.low)} to {_fmt(s.high)}. {_cap(_note(s))} "
                    + fitted_rung_words(s, fitted, other, a.scan, name))
     out.extend(a.notes)
+    out.extend(_negative_median_lines(a))
     out.append(f.verdict)
     out.append(f.slope_reading())
     for w in f.warnings:
@@ -335,6 +336,26 @@ def summary_lines(a: Analysis) -> list:
                    f"({_fmt(a.spread.low)} to {_fmt(a.spread.high)}); rung {a.spread.label}. {a.spread.note}")
     out.append("CAUTION: " + CAUTION)
     return out
+
+
+def _negative_median_lines(a: Analysis) -> list:
+    """Predictions whose median is below 0 from a line on y that were all 0 or above: said, with where."""
+    from unbend.predicting import NEGATIVE_MEDIAN
+
+    p = a.predictions
+    neg = np.array([NEGATIVE_MEDIAN in str(n) for n in p["note"]], dtype=bool)
+    if not neg.any():
+        return []
+    k, m = int(neg.sum()), len(p)
+    where = ""
+    if len(a.x_names) == 1:
+        where = f" (at {a.x_names[0]} = {', '.join(f'{v:.4g}' for v in p[a.x_names[0]].to_numpy()[neg])})"
+    t = a.fit.y_expr
+    on = a.y_name if t.is_identity else f"the {t.label} of {a.y_name}"
+    return [f"{k} of the {m} predictions {'has' if k == 1 else 'have'} a median below 0{where}, though no "
+            f"{a.y_name} observed is: the line fitted to {on} gives values below 0 there, which a line on the log "
+            f"or a root of {a.y_name} cannot do. Do not use {'it' if k == 1 else 'them'}; the scan shows how the "
+            "other y rungs fare (--y-power pins one)."]
 
 
 def _date_origin_lines(a: Analysis) -> list:
