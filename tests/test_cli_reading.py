@@ -208,7 +208,7 @@ def test_report_reads_parquet_like_the_same_csv(tmp_path):
         assert code == 0, err
         text = " ".join(out.split())
         assert "Rows used: 49; rows skipped: 1" in text and "(row 9, yield: blank)" in text, text
-        assert ("values read from text" in text) is (name == "d.csv")  # Parquet numbers are numbers
+        assert "values read from text" not in text  # Parquet numbers are numbers; the CSV's are plain numbers
         wb = openpyxl.load_workbook(tmp_path / f"{name}.xlsx", read_only=True)
         fit = {r[0]: r[1] for r in wb["Fit"].iter_rows(values_only=True) if r and isinstance(r[0], str)}
         wb.close()
@@ -239,3 +239,37 @@ def test_report_says_when_predicted_medians_fall_below_0(tmp_path, monkeypatch, 
     # the default rungs keep every median above 0: no such sentence
     code, out, err = run(["report", data, "--y", "dist", "--x", "speed", "--quiet", "--out", tmp_path / "d.xlsx"])
     assert code == 0 and (seen[-1].predictions["median"] > 0).all() and "median below 0" not in out
+
+
+def test_values_read_from_text_are_said_where_it_tells_something(tmp_path):
+    """In a text file every number is text: the summary says "read from text" only of values that were not
+    plainly the number they hold. In a workbook, numbers stored as text are always counted and said.
+    Invented data (y = 2 * x^0.5, with a little noise, seeded)."""
+    rng = np.random.default_rng(41)  # invented
+    x = np.round(rng.uniform(1.0, 60.0, 30), 2)
+    y = np.round(2.0 * x ** 0.5 * rng.lognormal(0.0, 0.05, 30), 3)
+    plain = tmp_path / "plain.csv"
+    plain.write_text("load,flow\n" + "".join(f"{b},{a}\n" for a, b in zip(x, y)))
+    code, out, err = run(["report", plain, "--y", "load", "--x", "flow", "--quiet", "--out", tmp_path / "a.xlsx"])
+    assert code == 0, err
+    assert "read from text" not in out
+    # the same numbers written with thousands separators (x times 1000, quoted): said, with examples
+    sep = tmp_path / "sep.csv"
+    sep.write_text("load,flow\n" + "".join(f'{b},"{a * 1000:,.0f}"\n' for a, b in zip(x, y)))
+    code, out, err = run(["report", sep, "--y", "load", "--x", "flow", "--quiet", "--out", tmp_path / "b.xlsx"])
+    assert code == 0, err
+    text = " ".join(out.split())
+    first = f"{x[0] * 1000:,.0f}"
+    assert "flow: 30 values read from text (such as " in text and f"'{first}' as {float(first.replace(',', '')):g}" \
+        in text, text
+    # numbers stored as text cells in a workbook: counted and said, plain or not
+    wb = openpyxl.Workbook()
+    ws = wb.active
+    ws.append(["load", "flow"])
+    for a, b in zip(x, y):
+        ws.append([float(b), str(a)])
+    wb.save(tmp_path / "cells.xlsx")
+    code, out, err = run(["report", tmp_path / "cells.xlsx", "--y", "load", "--x", "flow", "--quiet",
+                          "--out", tmp_path / "c.xlsx"])
+    assert code == 0, err
+    assert "flow: 30 values read from text." in " ".join(out.split())

@@ -386,10 +386,14 @@ class RowsReading:
                 out.extend(self.table_rows())
         return out
 
-    def lines(self, where: str = "row") -> list:
-        """Sentences for messages and summaries: skipped rows by reason with examples, text read, units, dates."""
+    def lines(self, where: str = "row", text_file: bool = False) -> list:
+        """Sentences for messages and summaries: skipped rows by reason with examples, text read, units, dates.
+
+        ``text_file``: the cells came from a text file, where every number is text; values read from text are
+        then mentioned only when some were not plainly the number they hold."""
         from .wording import LIMIT_ACTION, LIMIT_ACTION_CENSORED, reading_lines
-        return reading_lines(self, where, LIMIT_ACTION if self.y_censored is None else LIMIT_ACTION_CENSORED)
+        return reading_lines(self, where, LIMIT_ACTION if self.y_censored is None else LIMIT_ACTION_CENSORED,
+                             text_file=text_file)
 
 
 # ----------------------------------------------------------------------------- flattening
@@ -984,8 +988,12 @@ def _read_texts(flat, kinds, name, decimal, delimiter, settle, header, values, r
         dates[int(tidx[j])] = dates_u[int(codes[j])]
     pct_used = pct & (code_u == USED)
     # examples worth showing: texts that are not plainly the number they hold (separators, units, signs, percent)
-    fancy_u = (code_u == USED) & (~simple | pct | (vote == ",") | (vote == "?") | (shape == 2)
-                                  | (np.strings.str_len(body) != np.strings.str_len(uniq.astype(str))))
+    # ("15.161" read with a decimal point is plainly 15.161; with a decimal comma it is 15161, and "21,000" read
+    # with a decimal point is 21000: both worth showing)
+    u_str = uniq.astype(str)
+    plain_q = (vote == "?") & (dec == ".") & (np.strings.find(u_str, ",") < 0)
+    fancy_u = (code_u == USED) & (~simple | pct | (vote == ",") | ((vote == "?") & ~plain_q) | (shape == 2)
+                                  | (np.strings.str_len(body) != np.strings.str_len(u_str)))
     shown_ex = []
     for j in np.flatnonzero(fancy_u[codes] & is_num)[:_EXAMPLES].tolist():
         shown_ex.append((int(tidx[j]), _shown(texts[j]), float(val_u[codes[j]])))

@@ -151,11 +151,13 @@ def example_place(where: str, r, col: str = "", value: str = "") -> str:
     return f"{where} {r}" + (f", {col}" if col else "") + (f": {value}" if value else "")
 
 
-def reading_lines(rows, where: str = "row", limit_action: str = LIMIT_ACTION) -> list:
+def reading_lines(rows, where: str = "row", limit_action: str = LIMIT_ACTION, text_file: bool = False) -> list:
     """Sentences about how the cells were read: rows skipped by reason with examples, text read, units, dates.
 
     ``rows`` is an :class:`unbend.udfs.intake.RowsReading`; ``where`` names what row numbers count
-    ("row" for sheet rows, "position" for places in a cell range).
+    ("row" for sheet rows, "position" for places in a cell range). ``text_file``: the cells came from a text
+    file, where every number is text, so a column's values read from text are said only when some were not
+    plainly the number they hold (thousands or decimal separators to decide, units, signs, percent).
     """
     from .intake import LIMIT, NO_VALUE, reason_word
 
@@ -176,7 +178,7 @@ def reading_lines(rows, where: str = "row", limit_action: str = LIMIT_ACTION) ->
     if counts.get(NO_VALUE):
         out.append(f"{_count(counts[NO_VALUE], 'row')} with a formula saved without its value: {NO_VALUE_ACTION}.")
     for c in rows.columns:
-        if c.from_text:
+        if c.from_text and (c.text_examples or not text_file):  # in a text file, only numbers written unplainly
             ex = "; ".join(f"{s} as {v:.10g}" for _, s, v in c.text_examples)
             plain = c.decimal == "." and c.decimal_how == "values"  # nothing to say about plain decimal points
             dec = (f"; {DECIMAL_NAMES[c.decimal]}, {DECIMAL_HOW.get(c.decimal_how, '')}" if c.decimal and not plain

@@ -59,6 +59,9 @@ class DataReading:
         Sentences about the layout: the sheet chosen, where the header was found, a units row, hidden rows.
     hidden_used : int
         Hidden rows that were used (hidden by hand, or any with ``hidden="use"``).
+    text_file : bool
+        True for a .csv, .tsv or .txt file, where every value is text: "read from text" is then said only of
+        values that were not plainly the number they hold (separators, units, signs, percent).
     """
 
     source: str
@@ -74,6 +77,7 @@ class DataReading:
     groups: tuple | None
     notes: tuple
     hidden_used: int = 0
+    text_file: bool = False
 
     @property
     def y_label(self) -> str:
@@ -101,7 +105,7 @@ class DataReading:
 
     def lines(self) -> list:
         """Every sentence about the reading: layout notes, then rows skipped by reason, text read, units, dates."""
-        return list(self.notes) + self.rows.lines("row")
+        return list(self.notes) + self.rows.lines("row", text_file=self.text_file)
 
     def frame(self):
         """The rows used as a DataFrame (y, each x, groups), indexed by sheet row."""
@@ -405,7 +409,8 @@ def read_data(path, y: str, x=(), *, sheet: str | None = None, header_row: int |
                           path=os.fspath(path), sheet=name if not book.sheetless else None, header_row=h + 1,
                           units_row=units_row, y_name=y_names[0], x_names=tuple(y_names[1:1 + len(xs)]),
                           groups_name=y_names[-1] if groups else None, letters=tuple(col_letter(j) for j in cols),
-                          rows=rows, groups=glabels, notes=tuple(notes), hidden_used=hidden_used)
+                          rows=rows, groups=glabels, notes=tuple(notes), hidden_used=hidden_used,
+                          text_file=book.kind == "text")
     if rows.n_used < need:
         raise ReadError(_too_few(reading, need))
     return reading
