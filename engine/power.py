@@ -311,8 +311,11 @@ def suggest_x_power(y, x, *, level=0.95, y_power=1.0, y_start=0.0, x_start=0.0,
                        extra=rows.skipped_text())
 
 
-def symmetry_power(values, *, level=0.95, start=0.0, family="ladder", rungs=None) -> PowerSuggestion:
+def symmetry_power(values, *, level=0.95, start=0.0, family="ladder", rungs=None, censored=None) -> PowerSuggestion:
     """The power that makes one column most nearly normal (Box–Cox with no predictor).
+
+    ``censored`` (True where a value is a detection limit it lies below) switches to the censored likelihood,
+    as in :func:`suggest_power`.
 
     Returns
     -------
@@ -329,7 +332,7 @@ def symmetry_power(values, *, level=0.95, start=0.0, family="ladder", rungs=None
     >>> unbend.symmetry_power(v).label
     'log'
     """
-    s = suggest_power(values, None, level=level, y_start=start, family=family, rungs=rungs)
+    s = suggest_power(values, None, level=level, y_start=start, family=family, rungs=rungs, censored=censored)
     return PowerSuggestion(**{**s.__dict__, "what": "values",
                               "method": s.method.replace("profile likelihood", "profile likelihood, no predictor")})
 

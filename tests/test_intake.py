@@ -268,7 +268,7 @@ def test_cell_functions_read_text_cells_like_the_command():
     ref = unbend.fit(yy, np.array(x, dtype=float), y_power=1, x_power=1, censored=mask)
     assert d["intercept"] == pytest.approx(ref.coef[0], rel=1e-9) and d["slope x"] == pytest.approx(ref.coef[1], rel=1e-9)
     assert d["rows used"] == len(y) and d["rows skipped"] == 1
-    assert d["values below a limit, fitted as censored"] == 1 and d["values below a limit (censored)"] == 1
+    assert d["values below a limit, fitted as censored"] == 1 and "values below a limit (censored)" not in d
     assert d["values read from text"] == sum(1 for i in range(len(y)) if i % 2 and i != 4)
     assert d["skipped: summary row"] == 1
 

@@ -138,9 +138,10 @@ def _read_yx(y, x, censor=False):
     return rows
 
 
-def _y_only(y):
-    """y alone, rows used only, and its reading (shared between calls on equal cells)."""
-    rows = _readings.get_or_read((y,), lambda: cells.read_rows(y))
+def _y_only(y, censor=False):
+    """y alone, rows used only, and its reading (shared between calls on equal cells); with ``censor=True``
+    values below a limit ("<0.5") are kept at their limit and marked, as in :func:`_yx`."""
+    rows = _readings.get_or_read((y, "censored") if censor else (y,), lambda: cells.read_rows(y, censor=censor))
     return rows.y[rows.used], rows
 
 
@@ -195,8 +196,8 @@ def UNBEND_POWER(y, x=None, which=None):
     if x is None or (isinstance(x, str) and not x.strip()):
         if w == "x":
             raise UnbendError('which="x" needs an x range.')
-        yv, _ = _y_only(y)
-        return cells.scalar(_symmetry(yv).rung)
+        yv, rd = _y_only(y, censor=True)
+        return cells.scalar(_symmetry(yv, 0.0, _censored(rd)).rung)
     yv, X, rd = _yx(y, x, True)
     c = _censored(rd)
     yp, xp = _cache.get_or_compute(("pair", yv, X, None, None, 0.0, 0.0, c),
@@ -229,10 +230,12 @@ def _not_estimated_row(what, vals, other, rows):
 def UNBEND_SUGGEST(y, x=None):
     """Table: suggested power for y (and for x) with its 95% interval, the rung to use and a note."""
     if x is None or (isinstance(x, str) and not x.strip()):
-        yv, rd = _y_only(y)
+        yv, rd = _y_only(y, censor=True)
         if np.any(yv[np.isfinite(yv)] <= 0):  # as with x given: a row that says why, not an error
-            return cells.table(_SUGGEST_HEADER, [_symmetry_not_estimated_row(yv, rd)])
-        return cells.table(_SUGGEST_HEADER, [_suggest_row(_symmetry(yv), rd)])
+            row = _symmetry_not_estimated_row(yv, rd)
+        else:
+            row = _suggest_row(_symmetry(yv, 0.0, _censored(rd)), rd)
+        return cells.table(_SUGGEST_HEADER + _censored_header(rd), [row + _censored_cells(rd)])
     yv, X, rd = _yx(y, x, True)
     c = _censored(rd)
     yp, xp = _cache.get_or_compute(("pair", yv, X, None, None, 0.0, 0.0, c),
@@ -394,16 +397,17 @@ def UNBEND_SPREAD(values, groups):
                start="Optional start added to every value before re-expressing, for zeros or negatives (default 0).")
 def UNBEND_SYMMETRY(values, start=None):
     """Table: the power that makes one column's distribution most symmetric (Box-Cox), its 95% interval and rung."""
-    v, rd = _y_only(values)
-    s = _symmetry(v, cells.optional_number(start, "start", 0.0))
+    v, rd = _y_only(values, censor=True)
+    s = _symmetry(v, cells.optional_number(start, "start", 0.0), _censored(rd))
     return _rows_table(rd.into_rows(s.rows()))
 
 
-def _symmetry(v, start=0.0):
-    """The Box-Cox power for one column (shared between calls on equal values); zeros or negatives refused in
-    the words of the cells: which start to give UNBEND_SYMMETRY."""
+def _symmetry(v, start=0.0, censored=None):
+    """The Box-Cox power for one column (shared between calls on equal values), values below a limit censored;
+    zeros or negatives refused in the words of the cells: which start to give UNBEND_SYMMETRY."""
     try:
-        return _cache.get_or_compute(("sym", v, start), lambda: unbend.symmetry_power(v, start=start))
+        return _cache.get_or_compute(("sym", v, start, censored),
+                                     lambda: unbend.symmetry_power(v, start=start, censored=censored))
     except DomainError as e:
         raise UnbendError(_symmetry_needs(v, start, e.proposed_start) + f" Add a start of {e.proposed_start:g}: "
                           f"=UNBEND_SYMMETRY(values, {e.proposed_start:g}) adds it to every value first.") from None

@@ -378,9 +378,12 @@ class RowsReading:
 
     def into_rows(self, pairs) -> list:
         """Label/value rows (an engine result's ``rows()``) with its "rows skipped" replaced by this reading's
-        count, followed by the values read from text and the rows skipped by reason."""
+        count, followed by the values read from text, the values below a limit and the rows skipped by reason
+        (the engine's own count of values below a limit is then left out: the same number, said once)."""
         out = []
         for k, v in pairs:
+            if k == "values below a limit (censored)" and self.n_censored:
+                continue
             out.append((k, self.n_skipped if k == "rows skipped" else v))
             if k == "rows skipped":
                 out.extend(self.table_rows())
