@@ -528,10 +528,12 @@ def test_symmetry_with_zeros_says_which_start_and_the_start_matches_scipy_boxcox
         out = call(name, shifted)
         assert is_message(out) and words in out, out
     row = check_table(call("UNBEND_SUGGEST", shifted))[1]
-    assert row[:6] == ["y", "", "", "", "", ""] and row[6] == 50
+    assert row[:6] == ["values", "", "", "", "", ""] and row[6] == 50  # as the estimated row says (y alone)
+    assert check_table(call("UNBEND_SUGGEST", y))[1][0] == "values"
     assert f"{k} of 50 are not" in row[8] and f"=UNBEND_SYMMETRY(y, {start:g}) adds {start:g} to every y" in row[8]
     # the start the message names works, and a start too small is refused with the start that would do
     d = label_values(check_table(call("UNBEND_SYMMETRY", shifted, start)))
+    assert d["start added"] == start
     # source: scipy.stats.boxcox_normmax(method="mle") on the values plus the start
     assert d["estimate"] == pytest.approx(sst.boxcox_normmax(np.array(shifted) + start, method="mle"), abs=1e-4)
     assert d["rows used"] == 50

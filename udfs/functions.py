@@ -398,8 +398,11 @@ def UNBEND_SPREAD(values, groups):
 def UNBEND_SYMMETRY(values, start=None):
     """Table: the power that makes one column's distribution most symmetric (Box-Cox), its 95% interval and rung."""
     v, rd = _y_only(values, censor=True)
-    s = _symmetry(v, cells.optional_number(start, "start", 0.0), _censored(rd))
-    return _rows_table(rd.into_rows(s.rows()))
+    st = cells.optional_number(start, "start", 0.0)
+    rows = rd.into_rows(_symmetry(v, st, _censored(rd)).rows())
+    if st:  # the power belongs to the values plus the start: say which start
+        rows.insert(1, ("start added", st))
+    return _rows_table(rows)
 
 
 def _symmetry(v, start=0.0, censored=None):
@@ -426,7 +429,7 @@ def _symmetry_not_estimated_row(v, rows):
     start = unbend.propose_start(v[np.isfinite(v)], 0.0)
     note = (f"Not estimated. {_symmetry_needs(v, 0.0, start)} UNBEND_SYMMETRY takes a start: =UNBEND_SYMMETRY(y, "
             f"{start:g}) adds {start:g} to every y first, and every rung can be tried.")
-    return ["y", "", "", "", "", "", rows.n_used, rows.n_skipped, note] + _reading_cells(rows)
+    return ["values", "", "", "", "", "", rows.n_used, rows.n_skipped, note] + _reading_cells(rows)
 
 
 def _column_through(engine_fn, values, power, start, missing_power):
