@@ -160,3 +160,51 @@ def test_second_process_only_from_a_python_interpreter(exe, ok, monkeypatch):
         with plots.Drawer() as drawer:
             assert drawer.proc is None
 
+
+
+def test_groups_plots_from_the_second_process_equal_those_drawn_here(tmp_path):
+    """`unbend groups`' two PNGs (plots.draw_groups) drawn in the second process equal, byte for byte, those
+    drawn here. Invented series (three straight on log-log, one that bends there)."""
+    from unbend.udfs import groups_report as G
+    from unbend.udfs.files import read_data
+
+    rng = np.random.default_rng(1)  # invented
+    g = np.repeat(["a", "b", "c", "d"], 40)
+    x = np.tile(np.linspace(1.0, 50.0, 40), 4)
+    y = 3.0 * x ** 0.7 * rng.lognormal(0.0, 0.05, 160)
+    y[g == "d"] = 5.0 * np.exp(0.02 * x[g == "d"]) * rng.lognormal(0.0, 0.05, 40)
+    pd.DataFrame({"site": g, "x": x, "y": y}).to_csv(tmp_path / "s.csv", index=False)
+    a = G.analyse_groups(read_data(str(tmp_path / "s.csv"), "y", ["x"], groups="site"), y_power=0, x_power=0)
+    d = G.plot_data(a)
+    here = plots.draw_groups(d, tmp_path / "here")
+    with plots.Drawer(parallel=True) as drawer:
+        drawer.submit(d, tmp_path / "there", plots.draw_groups)
+        there = drawer.result()
+        assert drawer.drawn_in == "second process"
+    assert [os.path.basename(p) for p in here] == [os.path.basename(p) for p in there] == G.PLOT_FILES
+    assert _bytes(tmp_path / "here") == _bytes(tmp_path / "there")
+    # the series that bends is drawn red and named, from the fit's own table
+    assert d["bad"].tolist() == [False, False, False, True] and d["named"] == [(3, "d")]
+
+
+def test_groups_command_draws_in_the_second_process(tmp_path, monkeypatch):
+    seen = []
+    original = plots.Drawer.result
+
+    def spy(self):
+        paths = original(self)
+        seen.append(self.drawn_in)
+        return paths
+
+    monkeypatch.setattr(plots.Drawer, "result", spy)
+    monkeypatch.setattr(plots, "_cores", lambda: 2)
+    rng = np.random.default_rng(2)  # invented
+    g = np.repeat(["p", "q", "r"], 25)
+    x = np.tile(np.linspace(1.0, 30.0, 25), 3)
+    pd.DataFrame({"line": g, "x": x, "y": 2.0 * x ** 0.5 * rng.lognormal(0.0, 0.05, 75)}).to_csv(
+        tmp_path / "g.csv", index=False)
+    code, out, err = run(["groups", tmp_path / "g.csv", "--y", "y", "--x", "x", "--by", "line", "--quiet",
+                          "--out", tmp_path / "g.xlsx"])
+    assert code == 0, err
+    assert seen == ["second process"]
+    assert sorted(os.listdir(tmp_path / "g_plots")) == ["all_series.png", "worst_series.png"]

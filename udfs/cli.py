@@ -350,8 +350,10 @@ def main(argv=None) -> int:
         return 0
     try:
         if args.command == "groups":
-            from .groups_report import cmd_groups
-            return cmd_groups(args)
+            from .plots import Drawer
+            with Drawer() as drawer:  # started before the heavy imports, so matplotlib loads while they run
+                from .groups_report import cmd_groups
+                return cmd_groups(args, drawer)
         return cmd_demo(args) if args.command == "demo" else cmd_report(args)
     except KeyboardInterrupt:
         return _fail("stopped.", 130)

@@ -30,6 +30,7 @@ from .wording import group_headers
 from .xlsx import P_FORMAT, Book, Style
 
 __all__ = ["GroupsAnalysis", "analyse_groups", "summary_lines", "series_order", "write_workbook", "write_plots",
+           "plot_data",
            "PLOT_FILES", "TABLE_COLS", "cmd_groups"]
 
 #: The PNG files written in the plots folder.
@@ -388,15 +389,11 @@ def _re(a: GroupsAnalysis):
     return ty, tx
 
 
-def write_plots(a: GroupsAnalysis, folder) -> list:
-    """all_series.png (every series re-expressed, with its line) and worst_series.png (the worst ten)."""
-    from matplotlib.backends.backend_agg import FigureCanvasAgg
-    from matplotlib.figure import Figure
-
+def plot_data(a: GroupsAnalysis) -> dict:
+    """Everything the two PNGs show, as arrays and text (picklable, no engine objects; drawn by
+    :func:`unbend.udfs.plots.draw_groups`, in a second process when there is a second core)."""
     gf = a.fit
     ty, tx = _re(a)
-    os.makedirs(folder, exist_ok=True)
-    meta = {"Software": "unbend", "unbend run": a.run_id}
     t = gf.table[gf.table["used"]]
     label_of = {k: i for i, k in enumerate(t["group"].tolist())}
     code = np.array([label_of.get(v, -1) for v in a.groups.tolist()])
@@ -407,80 +404,27 @@ def write_plots(a: GroupsAnalysis, folder) -> list:
     xr[ok] = tx.apply(a.x[ok])
     worst = gf.worst(WORST_SHOWN)
     failing = set(gf._failing().tolist())
-    ylab = f"{ty.label} of {a.y_name}"
-    xlab = f"{tx.label} of {a.x_name}"
-    paths = []
-
-    def save(fig, name):
-        p = os.path.join(folder, name)
-        atomic_save(lambda tmp: fig.savefig(tmp, dpi=110, format="png", metadata=meta), p)
-        paths.append(p)
-
-    fig = Figure(figsize=(9, 6))
-    FigureCanvasAgg(fig)
-    ax = fig.subplots()
-    n = int(ok.sum())
-    size = 10.0 if n <= 3000 else max(1.0, 10.0 * (3000.0 / n) ** 0.5)
-    import matplotlib
-    cmap = matplotlib.colormaps["tab20"]
-    G = len(t)
-    # all groups at once (one scatter, one collection of lines): no pass over the rows per group
-    bad = np.array([g in failing for g in t["group"].tolist()], dtype=bool)
-    rgba = np.array([cmap(i % 20) for i in range(min(G, 20))] or [(0, 0, 0, 1)])
-    colours = rgba[np.arange(G) % len(rgba)] if G else np.zeros((0, 4))
-    if G:
-        colours[bad] = matplotlib.colors.to_rgba("#C8553D")
-    pts = np.flatnonzero(ok)
-    ax.scatter(xr[pts], yr[pts], s=size, c=colours[code[pts]] if G else None, alpha=0.55 if G > 20 else 0.8,
-               linewidths=0)
-    if G:
-        lo = np.full(G, np.inf)
-        hi = np.full(G, -np.inf)
-        np.minimum.at(lo, code[pts], xr[pts])
-        np.maximum.at(hi, code[pts], xr[pts])
-        b0, b1 = t["intercept"].to_numpy(float), t["slope"].to_numpy(float)
-        segs = np.stack([np.column_stack([lo, b0 + b1 * lo]), np.column_stack([hi, b0 + b1 * hi])], axis=1)
-        from matplotlib.collections import LineCollection
-        ax.add_collection(LineCollection(segs[~bad], colors=colours[~bad], linewidths=0.9, alpha=0.7))
-        ax.add_collection(LineCollection(segs[bad], colors=colours[bad], linewidths=2.0))
-        named = set(worst["group"].head(5).tolist())
-        for i in np.flatnonzero(bad):
-            g = t["group"].iloc[i]
-            if g in named:
-                ax.annotate(_label(g), (hi[i], b0[i] + b1[i] * hi[i]), fontsize=8, color="#C8553D", xytext=(3, 0),
-                            textcoords="offset points")
-    ax.set_xlabel(xlab)
-    ax.set_ylabel(ylab)
-    ax.set_title(f"Every {a.by_name} on the common scale ({G} series; failing a residual check: red, worst five "
-                 "named)", fontsize=10)
-    fig.tight_layout()
-    save(fig, "all_series.png")
-
-    k = len(worst)
-    cols = 5 if k > 4 else max(k, 1)
-    rows_ = max(1, -(-k // cols))
-    fig = Figure(figsize=(3.0 * cols, 2.7 * rows_ + 0.6))
-    FigureCanvasAgg(fig)
-    axes = np.atleast_1d(fig.subplots(rows_, cols, squeeze=False)).ravel()
-    for ax_, r in zip(axes, worst.itertuples()):
-        sel = code == label_of[r.group]
-        colour = "#C8553D" if r.group in failing else "#2A6F97"
-        ax_.scatter(xr[sel], yr[sel], s=12, color=colour, linewidths=0)
-        xs = np.linspace(np.nanmin(xr[sel]), np.nanmax(xr[sel]), 2)
-        ax_.plot(xs, r.intercept + r.slope * xs, color="#333333", lw=1)
+    groups = t["group"].tolist()
+    bad = np.array([g in failing for g in groups], dtype=bool)
+    named = set(worst["group"].head(5).tolist())
+    panels = []
+    for r in worst.itertuples():
         ps = [f"{nm} {_pshort(v)}" for nm, v in (("curv.", r.curvature_p), ("patt.", r.pattern_p),
                                                  ("spread", r.spread_p)) if np.isfinite(v)]
-        ax_.set_title(f"{_label(r.group)}\n" + ", ".join(ps), fontsize=8)
-        ax_.tick_params(labelsize=7)
-    for ax_ in axes[k:]:
-        ax_.set_visible(False)
-    fig.supxlabel(xlab, fontsize=9)
-    fig.supylabel(ylab, fontsize=9)
-    fig.suptitle(f"The {k} series with the worst residual checks (red: fails a check), each with its line",
-                 fontsize=10)
-    fig.tight_layout()
-    save(fig, "worst_series.png")
-    return paths
+        panels.append({"code": label_of[r.group], "failing": r.group in failing, "intercept": float(r.intercept),
+                       "slope": float(r.slope), "title": f"{_label(r.group)}\n" + ", ".join(ps)})
+    return {"run_id": a.run_id, "by_name": a.by_name, "ylab": f"{ty.label} of {a.y_name}",
+            "xlab": f"{tx.label} of {a.x_name}", "xr": xr, "yr": yr, "code": code, "bad": bad,
+            "intercept": t["intercept"].to_numpy(float), "slope": t["slope"].to_numpy(float),
+            "named": [(int(i), _label(groups[i])) for i in np.flatnonzero(bad) if groups[i] in named],
+            "panels": panels}
+
+
+def write_plots(a: GroupsAnalysis, folder) -> list:
+    """all_series.png (every series re-expressed, with its line) and worst_series.png (the worst ten)."""
+    from .plots import draw_groups
+
+    return draw_groups(plot_data(a), folder)
 
 
 def _pshort(p: float) -> str:
@@ -509,26 +453,31 @@ def out_path(args, data: str) -> str:
     return _out_path(args, data, "_unbend_groups.xlsx")
 
 
-def cmd_groups(args) -> int:
-    """``unbend groups DATA --y COLUMN --x COLUMN --by COLUMN``: read, fit, write, print."""
+def cmd_groups(args, drawer=None) -> int:
+    """``unbend groups DATA --y COLUMN --x COLUMN --by COLUMN``: read, fit, write, print.
+
+    ``drawer``: a :class:`unbend.udfs.plots.Drawer` already started (the command starts one before importing
+    this module); None starts one here."""
     from .cli import Progress, _model_choices
     from .files import read_data
     from .outputs import ReportFiles
+    from .plots import Drawer, draw_groups
 
     prog = Progress(args.quiet)
     data = os.path.abspath(args.data)
     out = out_path(args, data)
     choices = _model_choices(args)
     with ReportFiles(out, PLOT_FILES, overwrite=args.overwrite) as files:  # checks --out before any work
-        prog.step(f"reading {os.path.basename(data)}")
-        reading = read_data(data, args.y, [args.x], sheet=args.sheet, header_row=args.header_row,
-                            decimal=args.decimal, hidden=args.hidden or "auto", groups=args.by)
-        prog.step("choosing the common powers and fitting every series")
-        a = analyse_groups(reading, **choices)
-        prog.step("writing the workbook")
-        write_workbook(a, files.staged_workbook)
-        prog.step("drawing the plots")
-        write_plots(a, files.staged_plots)
+        with drawer or Drawer() as drawer:  # a second process loads matplotlib while this one reads and fits
+            prog.step(f"reading {os.path.basename(data)}")
+            reading = read_data(data, args.y, [args.x], sheet=args.sheet, header_row=args.header_row,
+                                decimal=args.decimal, hidden=args.hidden or "auto", groups=args.by)
+            prog.step("choosing the common powers and fitting every series")
+            a = analyse_groups(reading, **choices)
+            drawer.submit(plot_data(a), files.staged_plots, draw_groups)
+            prog.step("writing the workbook and drawing the plots")
+            write_workbook(a, files.staged_workbook)
+            drawer.result()
         book, pngs = files.publish()
     print_summary(a)
     print("\nFiles written:")

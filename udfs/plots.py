@@ -5,8 +5,9 @@ words only, picklable); :func:`draw` draws them with matplotlib's object
 interface and the Agg canvas (no pyplot, no GUI backend to look for, about
 a third faster to import).
 
-With two or more cores, ``unbend report`` draws in a second process
-(:class:`Drawer`): started before the main process imports pandas and scipy,
+With two or more cores, ``unbend report`` and ``unbend groups`` draw in a second
+process (:class:`Drawer`; :func:`draw_groups` draws the latter's two PNGs):
+started before the main process imports pandas and scipy,
 it imports matplotlib while the data are read and fitted, then draws while the
 main process writes the workbook. If that process cannot start or fails, the
 plots are drawn in the main process, so the files are the same either way
@@ -26,7 +27,7 @@ import numpy as np
 
 from .outputs import atomic_save
 
-__all__ = ["PLOT_FILES", "plot_data", "draw", "Drawer"]
+__all__ = ["PLOT_FILES", "plot_data", "draw", "draw_groups", "Drawer"]
 
 #: The plot files :func:`draw` writes, in its folder.
 PLOT_FILES = ("before_after.png", "residuals.png", "scan.png")
@@ -200,6 +201,84 @@ def draw(d: dict, folder) -> list:
     return paths
 
 
+def draw_groups(d: dict, folder) -> list:
+    """The PNGs of ``unbend groups`` from :func:`unbend.udfs.groups_report.plot_data`: all_series.png (every
+    series re-expressed, with its line) and worst_series.png (the worst ten); returns their paths."""
+    import matplotlib
+    from matplotlib.backends.backend_agg import FigureCanvasAgg
+    from matplotlib.collections import LineCollection
+    from matplotlib.figure import Figure
+
+    os.makedirs(folder, exist_ok=True)
+    meta = {"Software": "unbend", "unbend run": d["run_id"]}
+    xr, yr, code, bad = d["xr"], d["yr"], d["code"], d["bad"]
+    ok = code >= 0
+    paths = []
+
+    def save(fig, name):
+        p = os.path.join(folder, name)
+        atomic_save(lambda tmp: fig.savefig(tmp, dpi=110, format="png", metadata=meta), p)
+        paths.append(p)
+
+    fig = Figure(figsize=(9, 6))
+    FigureCanvasAgg(fig)
+    ax = fig.subplots()
+    n = int(ok.sum())
+    size = 10.0 if n <= 3000 else max(1.0, 10.0 * (3000.0 / n) ** 0.5)
+    cmap = matplotlib.colormaps["tab20"]
+    G = len(bad)
+    # all groups at once (one scatter, one collection of lines): no pass over the rows per group
+    rgba = np.array([cmap(i % 20) for i in range(min(G, 20))] or [(0, 0, 0, 1)])
+    colours = rgba[np.arange(G) % len(rgba)] if G else np.zeros((0, 4))
+    if G:
+        colours[bad] = matplotlib.colors.to_rgba("#C8553D")
+    pts = np.flatnonzero(ok)
+    ax.scatter(xr[pts], yr[pts], s=size, c=colours[code[pts]] if G else None, alpha=0.55 if G > 20 else 0.8,
+               linewidths=0)
+    if G:
+        lo = np.full(G, np.inf)
+        hi = np.full(G, -np.inf)
+        np.minimum.at(lo, code[pts], xr[pts])
+        np.maximum.at(hi, code[pts], xr[pts])
+        b0, b1 = d["intercept"], d["slope"]
+        segs = np.stack([np.column_stack([lo, b0 + b1 * lo]), np.column_stack([hi, b0 + b1 * hi])], axis=1)
+        ax.add_collection(LineCollection(segs[~bad], colors=colours[~bad], linewidths=0.9, alpha=0.7))
+        ax.add_collection(LineCollection(segs[bad], colors=colours[bad], linewidths=2.0))
+        for i, label in d["named"]:
+            ax.annotate(label, (hi[i], b0[i] + b1[i] * hi[i]), fontsize=8, color="#C8553D", xytext=(3, 0),
+                        textcoords="offset points")
+    ax.set_xlabel(d["xlab"])
+    ax.set_ylabel(d["ylab"])
+    ax.set_title(f"Every {d['by_name']} on the common scale ({G} series; failing a residual check: red, worst five "
+                 "named)", fontsize=10)
+    fig.tight_layout()
+    save(fig, "all_series.png")
+
+    k = len(d["panels"])
+    cols = 5 if k > 4 else max(k, 1)
+    rows_ = max(1, -(-k // cols))
+    fig = Figure(figsize=(3.0 * cols, 2.7 * rows_ + 0.6))
+    FigureCanvasAgg(fig)
+    axes = np.atleast_1d(fig.subplots(rows_, cols, squeeze=False)).ravel()
+    for ax_, r in zip(axes, d["panels"]):
+        sel = code == r["code"]
+        colour = "#C8553D" if r["failing"] else "#2A6F97"
+        ax_.scatter(xr[sel], yr[sel], s=12, color=colour, linewidths=0)
+        xs = np.linspace(np.nanmin(xr[sel]), np.nanmax(xr[sel]), 2)
+        ax_.plot(xs, r["intercept"] + r["slope"] * xs, color="#333333", lw=1)
+        ax_.set_title(r["title"], fontsize=8)
+        ax_.tick_params(labelsize=7)
+    for ax_ in axes[k:]:
+        ax_.set_visible(False)
+    fig.supxlabel(d["xlab"], fontsize=9)
+    fig.supylabel(d["ylab"], fontsize=9)
+    fig.suptitle(f"The {k} series with the worst residual checks (red: fails a check), each with its line",
+                 fontsize=10)
+    fig.tight_layout()
+    save(fig, "worst_series.png")
+    return paths
+
+
 def _cores() -> int:
     try:
         return len(os.sched_getaffinity(0))
@@ -239,9 +318,12 @@ class Drawer:
             except OSError:
                 self.proc = None
 
-    def submit(self, d: dict, folder) -> None:
-        """Hand the plot data and the folder to the second process (it draws at once)."""
-        self._job = (d, os.fspath(folder))
+    def submit(self, d: dict, folder, how=None) -> None:
+        """Hand the plot data and the folder to the second process (it draws at once).
+
+        ``how`` is the drawing function, a module-level function of this module called as ``how(d, folder)``
+        (default :func:`draw`, the report's plots; :func:`draw_groups` for ``unbend groups``)."""
+        self._job = (how or draw, d, os.fspath(folder))
         if self.proc is None:
             return
         try:
@@ -266,7 +348,8 @@ class Drawer:
                 self.drawn_in = "second process"
                 return value
         self.drawn_in = "this process"
-        return draw(*self._job)
+        how, d, folder = self._job
+        return how(d, folder)
 
     def _stop(self) -> None:
         p, self.proc = self.proc, None
@@ -325,8 +408,8 @@ def _serve() -> None:
         reader.join()
         if not box.get("raw"):  # the main process stopped before handing a job over
             return
-        d, folder = pickle.loads(box["raw"])
-        answer = ("drawn", draw(d, folder))
+        how, d, folder = pickle.loads(box["raw"])
+        answer = ("drawn", how(d, folder))
     except BaseException as e:  # the main process draws instead, and meets the same problem there
         answer = ("failed", f"{type(e).__name__}: {e}")
     out.write(pickle.dumps(answer))
