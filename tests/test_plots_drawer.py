@@ -32,6 +32,22 @@ def plot_data():
     return {"plain": plain, "censored": censored}
 
 
+@pytest.fixture
+def drawn_in(monkeypatch):
+    """Where each command's plots were drawn ("second process" or "this process"), with two cores assumed."""
+    seen = []
+    original = plots.Drawer.result
+
+    def spy(self):
+        paths = original(self)
+        seen.append(self.drawn_in)
+        return paths
+
+    monkeypatch.setattr(plots.Drawer, "result", spy)
+    monkeypatch.setattr(plots, "_cores", lambda: 2)
+    return seen
+
+
 def _bytes(folder):
     return {name: open(os.path.join(folder, name), "rb").read() for name in sorted(os.listdir(folder))}
 
@@ -122,18 +138,8 @@ def test_a_refused_report_stops_the_second_process(tmp_path, monkeypatch):
     assert not (tmp_path / "r.xlsx").exists() and not (tmp_path / "r_plots").exists()
 
 
-def test_report_draws_in_the_second_process_and_publishes_its_plots(tmp_path, monkeypatch):
+def test_report_draws_in_the_second_process_and_publishes_its_plots(tmp_path, drawn_in):
     """The command's own path: the plots come from the second process and sit beside the workbook."""
-    seen = []
-    original = plots.Drawer.result
-
-    def spy(self):
-        paths = original(self)
-        seen.append(self.drawn_in)
-        return paths
-
-    monkeypatch.setattr(plots.Drawer, "result", spy)
-    monkeypatch.setattr(plots, "_cores", lambda: 2)
     rng = np.random.default_rng(7)  # invented
     x = rng.uniform(1.0, 100.0, 60)
     y = 5.0 * np.log(x) + rng.normal(0.0, 0.2, 60)
@@ -141,7 +147,7 @@ def test_report_draws_in_the_second_process_and_publishes_its_plots(tmp_path, mo
     pd.DataFrame({"reading": y, "dose": x}).to_csv(data, index=False)
     code, out, err = run(["report", data, "--y", "reading", "--x", "dose", "--out", tmp_path / "r.xlsx", "--quiet"])
     assert code == 0, err
-    assert seen == ["second process"]
+    assert drawn_in == ["second process"]
     assert sorted(os.listdir(tmp_path / "r_plots")) == sorted(plots.PLOT_FILES)
     for name in plots.PLOT_FILES:
         assert f"r_plots{os.sep}{name}" in out
@@ -187,17 +193,7 @@ def test_groups_plots_from_the_second_process_equal_those_drawn_here(tmp_path):
     assert d["bad"].tolist() == [False, False, False, True] and d["named"] == [(3, "d")]
 
 
-def test_groups_command_draws_in_the_second_process(tmp_path, monkeypatch):
-    seen = []
-    original = plots.Drawer.result
-
-    def spy(self):
-        paths = original(self)
-        seen.append(self.drawn_in)
-        return paths
-
-    monkeypatch.setattr(plots.Drawer, "result", spy)
-    monkeypatch.setattr(plots, "_cores", lambda: 2)
+def test_groups_command_draws_in_the_second_process(tmp_path, drawn_in):
     rng = np.random.default_rng(2)  # invented
     g = np.repeat(["p", "q", "r"], 25)
     x = np.tile(np.linspace(1.0, 30.0, 25), 3)
@@ -206,5 +202,5 @@ def test_groups_command_draws_in_the_second_process(tmp_path, monkeypatch):
     code, out, err = run(["groups", tmp_path / "g.csv", "--y", "y", "--x", "x", "--by", "line", "--quiet",
                           "--out", tmp_path / "g.xlsx"])
     assert code == 0, err
-    assert seen == ["second process"]
+    assert drawn_in == ["second process"]
     assert sorted(os.listdir(tmp_path / "g_plots")) == ["all_series.png", "worst_series.png"]

@@ -86,19 +86,25 @@ def cmd_demo(args) -> int:
     return 0
 
 
-def _print_summary(a):
+def print_sentences(title: str, lines) -> None:
+    """A summary as the commands print it: the title underlined, the first two lines together, then one
+    paragraph per sentence, wrapped at 100 characters."""
     import textwrap
 
+    print(title)
+    print("=" * len(title))
+    for i, line in enumerate(lines):
+        if i >= 2:
+            print()
+        print("\n".join(textwrap.wrap(line, 100)))
+
+
+def _print_summary(a):
     import pandas as pd
 
     from .report import summary_lines
 
-    print("unbend summary")
-    print("=" * 14)
-    for i, line in enumerate(summary_lines(a)):
-        if i >= 2:
-            print()
-        print("\n".join(textwrap.wrap(line, 100)))
+    print_sentences("unbend summary", summary_lines(a))
     print("\nScan, top 5 of", len(a.scan), "pairs:")
     cols = ["rank", "y_rung", "x_rung", "loglik", "curvature_p", "spread_p", "r2", "verdict"]
     with pd.option_context("display.width", 200, "display.max_colwidth", 48):

@@ -412,11 +412,11 @@ def _symmetry(v, start=0.0, censored=None):
         return _cache.get_or_compute(("sym", v, start, censored),
                                      lambda: unbend.symmetry_power(v, start=start, censored=censored))
     except DomainError as e:
-        raise UnbendError(_symmetry_needs(v, start, e.proposed_start) + f" Add a start of {e.proposed_start:g}: "
+        raise UnbendError(_symmetry_needs(v, start) + f" Add a start of {e.proposed_start:g}: "
                           f"=UNBEND_SYMMETRY(values, {e.proposed_start:g}) adds it to every value first.") from None
 
 
-def _symmetry_needs(v, start, proposed) -> str:
+def _symmetry_needs(v, start) -> str:
     v = v[np.isfinite(v)]
     k = int(np.sum(v + start <= 0))
     cur = f" after adding the start {start:g}" if start else ""
@@ -427,7 +427,7 @@ def _symmetry_needs(v, start, proposed) -> str:
 def _symmetry_not_estimated_row(v, rows):
     """UNBEND_SUGGEST's row for y alone when a value is 0 or below."""
     start = unbend.propose_start(v[np.isfinite(v)], 0.0)
-    note = (f"Not estimated. {_symmetry_needs(v, 0.0, start)} UNBEND_SYMMETRY takes a start: =UNBEND_SYMMETRY(y, "
+    note = (f"Not estimated. {_symmetry_needs(v, 0.0)} UNBEND_SYMMETRY takes a start: =UNBEND_SYMMETRY(y, "
             f"{start:g}) adds {start:g} to every y first, and every rung can be tried.")
     return ["values", "", "", "", "", "", rows.n_used, rows.n_skipped, note] + _reading_cells(rows)
 

@@ -13,7 +13,6 @@ stays light; this module is imported only when the command runs.
 from __future__ import annotations
 
 import os
-import textwrap
 import uuid
 from dataclasses import dataclass, field
 
@@ -433,12 +432,9 @@ def _pshort(p: float) -> str:
 
 # ----------------------------------------------------------------------------- the command
 def print_summary(a: GroupsAnalysis) -> None:
-    print("unbend groups summary")
-    print("=" * 21)
-    for i, line in enumerate(summary_lines(a)):
-        if i >= 2:
-            print()
-        print("\n".join(textwrap.wrap(line, 100)))
+    from .cli import print_sentences
+
+    print_sentences("unbend groups summary", summary_lines(a))
     w = a.fit.worst(5)
     if len(w):
         print("\nWorst residual checks first (top 5 of", a.fit.n_groups_used, "series):")

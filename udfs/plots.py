@@ -95,6 +95,14 @@ def _open_at_limit(ax, x, y, color):
     ax.scatter(x, y - tick, marker="v", s=12, color=color, linewidths=0)
 
 
+def _save_png(fig, folder, name, meta) -> str:
+    """One figure as folder/name, written atomically; returns the path."""
+    p = os.path.join(folder, name)
+    # compress_level 1: the same pixels as the default 6, encoded in about a third of the time
+    atomic_save(lambda t: fig.savefig(t, dpi=110, format="png", metadata=meta, pil_kwargs={"compress_level": 1}), p)
+    return p
+
+
 def draw(d: dict, folder) -> list:
     """PNG plots: before/after scatter, residuals against fitted, the scan as a picture; returns their paths."""
     from matplotlib.backends.backend_agg import FigureCanvasAgg
@@ -123,11 +131,7 @@ def draw(d: dict, folder) -> list:
         return 0.42 + 0.075 * width  # y label and tick marks, then about 0.075 in per character at 10 pt
 
     def save(fig, name):
-        p = os.path.join(folder, name)
-        # compress_level 1: the same pixels as the default 6, encoded in about a third of the time
-        atomic_save(lambda t: fig.savefig(t, dpi=110, format="png", metadata=meta,
-                                          pil_kwargs={"compress_level": 1}), p)
-        paths.append(p)
+        paths.append(_save_png(fig, folder, name, meta))
 
     cz = d.get("censored")
     if cz is not None:  # measured values as dots, values below a limit drawn at the limit, open, pointing down
@@ -216,9 +220,7 @@ def draw_groups(d: dict, folder) -> list:
     paths = []
 
     def save(fig, name):
-        p = os.path.join(folder, name)
-        atomic_save(lambda tmp: fig.savefig(tmp, dpi=110, format="png", metadata=meta), p)
-        paths.append(p)
+        paths.append(_save_png(fig, folder, name, meta))
 
     fig = Figure(figsize=(9, 6))
     FigureCanvasAgg(fig)

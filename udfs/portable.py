@@ -414,15 +414,19 @@ def _inverse_formulas(r: int, first: int, last: int) -> dict:
     r1 = f"{xm}+(({xr}-{xm})-{half})/(1-{g})"
     r2 = f"{xm}+(({xr}-{xm})+{half})/(1-{g})"
     one_piece = f"AND(MIN({r1},{r2})<0,MAX({r1},{r2})>=0)"
-    rises = f"IF({disc},IF(AND({floor0},{one_piece}),MAX({r1},{r2}),\"{INV_NOT_BOUNDED}\"),\"{INV_NOT_BOUNDED}\")"
-    falls = f"IF({disc},IF(AND({ceil0},{one_piece}),MIN({r1},{r2}),\"{INV_NOT_BOUNDED}\"),\"{INV_NOT_BOUNDED}\")"
+    nb = f'"{INV_NOT_BOUNDED}"'
+
+    def kept(cut, end, otherwise=nb):
+        """The end left where the x power (``cut``) cuts one piece of the open set off, else ``otherwise``."""
+        return f"IF({disc},IF(AND({cut},{one_piece}),{end},{otherwise}),{otherwise})"
+
     # the low end of an open set in x: x's own edge (-start) where x' = -inf or 0 is one (log, roots, even and
     # negative powers), none where x runs without end (raw and odd powers)
-    x_edge = f"IF(OR({xp}=1,AND({xp}>0,{odd})),\"{INV_NOT_BOUNDED}\",-{xs})"
-    open_low = (f"IF(AND({disc},{floor0}),IF({one_piece},{_invert(f'MAX({r1},{r2})', xp, xs)},{x_edge}),"
-                f"{x_edge})")
-    open_high = (f"IF(AND({disc},{ceil0}),IF({one_piece},{_invert(f'MIN({r1},{r2})', xp, xs)},"
-                 f"\"{INV_NOT_BOUNDED}\"),\"{INV_NOT_BOUNDED}\")")
+    x_edge = f"IF(OR({xp}=1,AND({xp}>0,{odd})),{nb},-{xs})"
+    low_end, high_end = f"MAX({r1},{r2})", f"MIN({r1},{r2})"
+    rises, falls = kept(floor0, low_end), kept(ceil0, high_end)
+    open_low = kept(floor0, _invert(low_end, xp, xs), x_edge)
+    open_high = kept(ceil0, _invert(high_end, xp, xs))
     level = f"ROUND({C['level']}*100,4)"
     notes = [
         (f'{V["outside"]}="yes"', "\"outside the calibration standards' x range: extrapolation\""),
